@@ -1,0 +1,222 @@
+"""End-to-end: a demo notebook run in JupyterLab, in headless Debian Chromium driven by Playwright.
+
+Serves JupyterLab on 127.0.0.1, runs every cell, waits for typeset math and the check panel,
+presses the panel's button and expects the result text to change. A screenshot is saved in
+``test-artifacts/``; with ``GRADWRIGHT_UPDATE_SCREENSHOT=1`` it is also copied to
+``docs/screenshot.png`` for the README.
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import shutil
+import signal
+import socket
+import subprocess
+import sys
+import time
+import urllib.request
+from pathlib import Path
+
+import pytest
+
+pytestmark = pytest.mark.browser
+
+ROOT = Path(__file__).resolve().parents[2]
+CHROMIUM = Path("/usr/bin/chromium")
+ARTIFACTS = ROOT / "test-artifacts"
+DEMO = ROOT / "notebooks_demo" / "store_week_demand.ipynb"
+# Flags measured to work on our machines (testing-stack.md).
+CHROMIUM_FLAGS = [
+    "--headless",
+    "--no-sandbox",
+    "--disable-gpu",
+    "--disable-quic",
+    "--no-first-run",
+    "--disable-background-networking",
+    "--disable-component-update",
+    "--disable-sync",
+]
+SERVER_START_TIMEOUT = 120  # seconds; a cold JupyterLab start on 2 cores takes ~10 s
+CELL_TIMEOUT_MS = 180_000
+
+
+def _ensure_chromium() -> None:
+    if CHROMIUM.exists():
+        return
+    script = ROOT / "scripts" / "install-browser.sh"
+    try:
+        subprocess.run(["bash", str(script)], check=True, timeout=900)
+    except (subprocess.SubprocessError, OSError) as err:
+        pytest.skip(f"Debian chromium could not be installed by {script.name}: {err}")
+    if not CHROMIUM.exists():
+        pytest.skip(f"{CHROMIUM} is still missing after {script.name}")
+
+
+def _free_port() -> int:
+    with socket.socket() as sock:
+        sock.bind(("127.0.0.1", 0))
+        return sock.getsockname()[1]
+
+
+def _write_settings(settings_dir: Path) -> None:
+    """User settings that keep news, update checks and toasts out of the screenshots."""
+    notification = settings_dir / "@jupyterlab" / "apputils-extension"
+    notification.mkdir(parents=True, exist_ok=True)
+    (notification / "notification.jupyterlab-settings").write_text(
+        json.dumps({"fetchNews": "false", "checkForUpdates": False, "doNotDisturbMode": True})
+    )
+
+
+def _wait_for_server(url: str, proc: subprocess.Popen, log: Path) -> None:
+    deadline = time.monotonic() + SERVER_START_TIMEOUT
+    while time.monotonic() < deadline:
+        if proc.poll() is not None:
+            raise RuntimeError(f"JupyterLab exited early:\n{log.read_text()[-3000:]}")
+        try:
+            with urllib.request.urlopen(url, timeout=5) as response:
+                if response.status == 200:
+                    return
+        except OSError:
+            pass
+        time.sleep(0.5)
+    raise RuntimeError(f"JupyterLab did not answer within {SERVER_START_TIMEOUT} s")
+
+
+def _stop_server(proc: subprocess.Popen) -> None:
+    if proc.poll() is not None:
+        return
+    # SIGINT twice is the server's own "shut down now" (it stops its kernels first).
+    for sig in (signal.SIGINT, signal.SIGINT):
+        try:
+            proc.send_signal(sig)
+        except ProcessLookupError:
+            return
+        time.sleep(0.5)
+    try:
+        proc.wait(timeout=30)
+    except subprocess.TimeoutExpired:
+        proc.kill()
+        proc.wait(timeout=10)
+
+
+def _notebook_for_test(workdir: Path) -> Path:
+    source = Path(os.environ.get("GRADWRIGHT_BROWSER_NOTEBOOK", DEMO))
+    target = workdir / source.name
+    shutil.copy(source, target)
+    return target
+
+
+def test_demo_notebook_in_jupyterlab(tmp_path):
+    _ensure_chromium()
+    from playwright.sync_api import sync_playwright
+
+    ARTIFACTS.mkdir(exist_ok=True)
+    workdir = tmp_path / "root"
+    workdir.mkdir()
+    notebook = _notebook_for_test(workdir)
+    settings_dir = tmp_path / "lab-settings"
+    _write_settings(settings_dir)
+
+    port = _free_port()
+    token = "gradwright-browser-test"
+    env = dict(os.environ)
+    env.update(
+        JUPYTERLAB_SETTINGS_DIR=str(settings_dir),
+        JUPYTERLAB_WORKSPACES_DIR=str(tmp_path / "lab-workspaces"),
+        JUPYTER_RUNTIME_DIR=str(tmp_path / "runtime"),
+        PYTHONPATH=os.pathsep.join(filter(None, [str(ROOT / "src"), env.get("PYTHONPATH")])),
+        MPLBACKEND="Agg",
+    )
+    log = tmp_path / "jupyterlab.log"
+    command = [
+        sys.executable,
+        "-m",
+        "jupyterlab",
+        "--no-browser",
+        "--allow-root",
+        "--ServerApp.ip=127.0.0.1",
+        f"--ServerApp.port={port}",
+        "--ServerApp.port_retries=0",
+        f"--IdentityProvider.token={token}",
+        f"--ServerApp.root_dir={workdir}",
+        "--LabApp.expose_app_in_browser=True",
+        "--LabApp.news_url=",
+        "--LabApp.check_for_updates_class=jupyterlab.NeverCheckForUpdate",
+    ]
+    started = time.monotonic()
+    with open(log, "w") as log_file:
+        proc = subprocess.Popen(
+            command, cwd=workdir, env=env, stdout=log_file, stderr=subprocess.STDOUT
+        )
+    try:
+        _wait_for_server(f"http://127.0.0.1:{port}/api/status?token={token}", proc, log)
+        with sync_playwright() as pw:
+            browser = pw.chromium.launch(
+                executable_path=str(CHROMIUM), headless=True, args=CHROMIUM_FLAGS
+            )
+            try:
+                page = browser.new_page(viewport={"width": 1280, "height": 1000})
+                _run_notebook_and_click(page, port, token, notebook.name)
+            finally:
+                browser.close()
+    finally:
+        _stop_server(proc)
+    print(f"browser test took {time.monotonic() - started:.1f} s")
+
+
+def _run_notebook_and_click(page, port: int, token: str, name: str) -> None:
+    page.set_default_timeout(CELL_TIMEOUT_MS)
+    page.goto(f"http://127.0.0.1:{port}/lab/tree/{name}?token={token}")
+    page.wait_for_selector(".jp-Notebook", state="visible")
+    page.wait_for_function("() => window.jupyterapp !== undefined")
+    _wait_kernel_idle(page)
+
+    page.evaluate("() => window.jupyterapp.commands.execute('notebook:run-all-cells')")
+    # Typeset math (MathJax 3 renders into <mjx-container>) and the check panel's widgets.
+    page.wait_for_selector("mjx-container", state="attached")
+    status = page.locator(".gradwright-check-status").first
+    status.wait_for(state="visible")
+    _wait_kernel_idle(page)
+    page.wait_for_function(
+        """() => Array.from(document.querySelectorAll('.jp-InputArea-prompt'))
+                  .every(p => !p.textContent.includes('*'))"""
+    )
+    errors = page.locator(".jp-RenderedText[data-mime-type='application/vnd.jupyter.stderr']")
+    tracebacks = [t for t in errors.all_inner_texts() if "Traceback" in t or "Error" in t]
+    assert not tracebacks, f"cells raised: {tracebacks[:2]}"
+
+    before = status.inner_text()
+    button = page.locator(".gradwright-check-run").first
+    button.scroll_into_view_if_needed()
+    button.click()
+    page.wait_for_function(
+        """([before]) => {
+            const el = document.querySelector('.gradwright-check-status');
+            return el && el.innerText !== before && !el.innerText.includes('running');
+        }""",
+        arg=[before],
+    )
+    after = status.inner_text()
+    assert after != before
+    assert "PASS" in after, after
+
+    panel = page.locator(".gradwright-check-panel").first
+    panel.scroll_into_view_if_needed()
+    page.wait_for_timeout(500)  # let the plot images paint
+    shot = ARTIFACTS / "jupyterlab-check-panel.png"
+    page.screenshot(path=str(shot), full_page=False)
+    if os.environ.get("GRADWRIGHT_UPDATE_SCREENSHOT") == "1":
+        shutil.copy(shot, ROOT / "docs" / "screenshot.png")
+
+
+def _wait_kernel_idle(page) -> None:
+    page.wait_for_function(
+        """() => {
+            const el = document.querySelector('.jp-Notebook-ExecutionIndicator');
+            if (el && el.getAttribute('data-status') === 'idle') return true;
+            const bar = document.querySelector('#jp-main-statusbar');
+            return !el && bar && /Idle/.test(bar.innerText);
+        }"""
+    )
