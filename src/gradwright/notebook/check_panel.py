@@ -1,0 +1,368 @@
+"""The check panel: compares a derivation's generated derivative with finite differences.
+
+Controls, a run button, a status line and one `Output`; the numbers come from `fdcheck`.
+"""
+
+from __future__ import annotations
+
+import html
+import io
+import math
+
+import numpy as np
+
+from .fdcheck import (
+    METHODS,
+    CheckResult,
+    default_step,
+    default_tolerance,
+    fit_namespace,
+    run_check,
+)
+
+__all__ = ["CheckPanel", "DEFAULT_SIZES"]
+
+# Distinct small sizes per dim, so that a transposed product cannot pass by accident.
+DEFAULT_SIZES = (4, 3, 5, 2, 6, 7)
+ALL = "all variables"
+STATUS_CLASS = "gradwright-check-status"
+
+
+def _plot_png(figure) -> bytes:
+    buffer = io.BytesIO()
+    figure.savefig(buffer, format="png", dpi=96, bbox_inches="tight")
+    return buffer.getvalue()
+
+
+def sweep_figure(result: CheckResult):
+    """Log-log plot of error against step size, the chosen step marked; None without data."""
+    from matplotlib.figure import Figure
+
+    checks = [c for c in result.checks if c.sweep is not None]
+    if not checks:
+        return None
+    figure = Figure(figsize=(4.4, 3.1))
+    axes = figure.subplots()
+    styles = {"central": "-", "forward": "--", "complex step": ":"}
+    for check in checks:
+        steps, curves = check.sweep
+        for method, errors in curves.items():
+            shown = np.where(np.isfinite(errors), np.maximum(errors, 1e-17), np.nan)
+            label = method if len(checks) == 1 else f"{check.variable}, {method}"
+            width = 2.0 if method == result.method else 1.0
+            axes.loglog(steps, shown, styles.get(method, "-"), lw=width, label=label)
+        axes.axvline(check.step, color="0.35", lw=0.8)
+    axes.axhline(result.tolerance, color="tab:red", lw=0.8, ls=":", label="tolerance")
+    axes.annotate(
+        "chosen step",
+        (checks[0].step, 0.02),
+        xycoords=("data", "axes fraction"),
+        fontsize=8,
+        rotation=90,
+        ha="right",
+        va="bottom",
+        color="0.3",
+    )
+    axes.set_xlabel("step h")
+    axes.set_ylabel("relative error")
+    axes.set_title("error against step size", fontsize=10)
+    axes.legend(fontsize=7, frameon=False)
+    axes.grid(True, which="major", alpha=0.3)
+    return figure
+
+
+def heatmap_figure(check):
+    """Heat map of log10 entrywise relative error for a matrix variable; None otherwise."""
+    from matplotlib.figure import Figure
+
+    errors = check.entrywise
+    if errors is None or errors.ndim != 2:
+        return None
+    figure = Figure(figsize=(3.6, 3.1))
+    axes = figure.subplots()
+    with np.errstate(divide="ignore", invalid="ignore"):
+        logs = np.log10(np.maximum(errors, 1e-17))
+    image = axes.imshow(
+        logs, cmap="viridis", vmin=-17, vmax=0, aspect="auto", interpolation="nearest"
+    )
+    figure.colorbar(image, ax=axes, label="log10 relative error")
+    axes.set_title(f"entrywise error, {check.variable}", fontsize=10)
+    axes.set_xlabel("column")
+    axes.set_ylabel("row")
+    rows, cols = errors.shape
+    axes.set_xticks(range(cols) if cols <= 12 else [0, cols - 1])
+    axes.set_yticks(range(rows) if rows <= 12 else [0, rows - 1])
+    return figure
+
+
+def _status_html(result: CheckResult | None, run: int) -> str:
+    if result is None:
+        return (
+            "<span style='color:#555'>Not run yet: press <b>Run check</b> to compare the "
+            "generated derivative with finite differences.</span>"
+        )
+    color = {"PASS": "#1a7f37", "FAIL": "#b42318", "ERROR": "#b42318"}[result.verdict]
+    tail = f" &middot; run {run} &middot; {result.elapsed:.2f} s"
+    return (
+        f"<span style='color:{color};font-weight:600'>{html.escape(result.verdict)}</span> "
+        f"<span>{html.escape(result.summary().split(': ', 1)[1])}</span>"
+        f"<span style='color:#777'>{tail}</span>"
+    )
+
+
+def _table_html(result: CheckResult) -> str:
+    rows = []
+    for check in result.checks:
+        for label, analytic, numeric, rel in check.directional:
+            ok = rel <= result.tolerance
+            mark = "&#10003;" if ok else "&#10007;"
+            rows.append(
+                f"<tr><td>{html.escape(check.variable)}</td><td>{html.escape(label)}</td>"
+                f"<td>{analytic: .6e}</td><td>{numeric: .6e}</td><td>{rel:.1e} {mark}</td></tr>"
+            )
+        if check.entrywise is not None:
+            worst = float(np.nanmax(check.entrywise)) if np.isfinite(check.entrywise).any() else 0
+            count = int(np.isfinite(check.entrywise).sum())
+            mark = "&#10003;" if worst <= result.tolerance else "&#10007;"
+            rows.append(
+                f"<tr><td>{html.escape(check.variable)}</td><td>{count} entries one by one</td>"
+                f"<td></td><td></td><td>{worst:.1e} {mark}</td></tr>"
+            )
+    sources = ", ".join(
+        f"{html.escape(k)} from {'your namespace' if v == 'namespace' else 'random draw'}"
+        for k, v in result.sources.items()
+    )
+    notes = "".join(f"<p style='color:#8a6d00'>{html.escape(n)}</p>" for n in result.notes)
+    return (
+        "<table style='font-size:90%'><thead><tr><th>variable</th><th>along</th>"
+        "<th>generated</th><th>finite difference</th><th>relative error</th></tr></thead>"
+        f"<tbody>{''.join(rows)}</tbody></table>"
+        f"<p style='color:#555;font-size:85%'>inputs: {sources}</p>{notes}"
+    )
+
+
+class CheckPanel:
+    """Finite-difference check of a derivation, as ipywidgets.
+
+    Set the widgets' values and call `run()` (or press the button); the outcome is kept in
+    `last_result` (`.passed`, `.max_rel_error`, `.summary()`), and `status.value` shows it.
+
+    >>> from gradwright import derive                                 # doctest: +SKIP
+    >>> panel = CheckPanel(derive("X: (n, n)\\nf = trace(X @ X)", wrt="X"))  # doctest: +SKIP
+    >>> panel.run().passed                                            # doctest: +SKIP
+    True
+    """
+
+    def __init__(
+        self,
+        derivation,
+        namespace: dict | None = None,
+        *,
+        sizes: dict | None = None,
+        seed: int = 0,
+        method: str = "central",
+        use_namespace: bool = False,
+    ):
+        import ipywidgets as w
+
+        self.derivation = derivation
+        self.namespace = namespace
+        self.last_result: CheckResult | None = None
+        self.runs = 0
+        self.complex_ok = bool(getattr(derivation, "supports_complex_step", False))
+
+        dims = [d for d in derivation.dims if not str(d).isdigit()]
+        sizes = dict(sizes or {})
+        narrow = w.Layout(width="150px")
+        self.size_inputs = {
+            dim: w.BoundedIntText(
+                value=int(sizes.get(dim, DEFAULT_SIZES[i % len(DEFAULT_SIZES)])),
+                min=1,
+                max=500,
+                description=str(dim),
+                layout=narrow,
+                style={"description_width": "40px"},
+            )
+            for i, dim in enumerate(dims)
+        }
+        variables = list(derivation.variables)
+        options = variables + ([ALL] if len(variables) > 1 else [])
+        self.variable = w.Dropdown(
+            options=options,
+            value=ALL if len(variables) > 1 else variables[0],
+            description="check",
+            layout=w.Layout(width="260px"),
+        )
+        methods = [m for m in METHODS if m != "complex step" or self.complex_ok]
+        if method not in methods:
+            raise ValueError(f"method {method!r} is not available here; choose from {methods}")
+        self.method = w.ToggleButtons(options=methods, value=method, description="method")
+        self.method.style.button_width = "110px"
+        self.step = w.FloatText(
+            value=default_step(method),
+            description="step",
+            layout=w.Layout(width="220px"),
+            tooltip="relative step; h = step * max(1, rms of the variable)",
+        )
+        self.tolerance = w.FloatText(
+            value=default_tolerance(method),
+            description="tolerance",
+            layout=w.Layout(width="220px"),
+        )
+        self.seed = w.IntText(value=int(seed), description="seed", layout=w.Layout(width="180px"))
+        self.use_namespace = w.Checkbox(
+            value=bool(use_namespace and namespace is not None),
+            description="use arrays from my namespace when they fit",
+            disabled=namespace is None,
+            indent=False,
+        )
+        self.button = w.Button(
+            description="Run check",
+            button_style="primary",
+            icon="check",
+            tooltip="compare with finite differences",
+        )
+        self.button.add_class("gradwright-check-run")
+        self.status = w.HTML(_status_html(None, 0))
+        self.status.add_class(STATUS_CLASS)
+        self.output = w.Output()
+
+        self.method.observe(self._method_changed, names="value")
+        self.button.on_click(lambda _button: self.run())
+        self.widget = self._layout(w)
+
+    # -- layout -------------------------------------------------------------------------
+    def _layout(self, w):
+        title = w.HTML(
+            f"<b>Finite-difference check</b> of the derivative of "
+            f"<code>{html.escape(self.derivation.target)}</code>"
+        )
+        sizes = list(self.size_inputs.values())
+        rows = [title]
+        if sizes:
+            rows.append(
+                w.HBox(
+                    [w.Label("dims", layout=w.Layout(width="60px")), *sizes],
+                    layout=w.Layout(flex_flow="row wrap"),
+                )
+            )
+        rows += [
+            w.HBox([self.variable, self.seed]),
+            self.method,
+            w.HBox([self.step, self.tolerance]),
+            self.use_namespace,
+            w.HBox([self.button, self.status], layout=w.Layout(align_items="center")),
+            self.output,
+        ]
+        box = w.VBox(
+            rows, layout=w.Layout(border="1px solid #d0d7de", padding="6px 10px", margin="6px 0")
+        )
+        box.add_class("gradwright-check-panel")
+        return box
+
+    def _ipython_display_(self):
+        from IPython.display import display
+
+        display(self.widget)
+
+    # -- wiring -------------------------------------------------------------------------
+    def _method_changed(self, change):
+        self.step.value = default_step(change["new"])
+        self.tolerance.value = default_tolerance(change["new"])
+
+    def _inputs(self):
+        d = self.derivation
+        names = list(d.arguments())
+        sizes = {dim: int(box.value) for dim, box in self.size_inputs.items()}
+        taken, sources, refused = {}, {}, {}
+        if self.use_namespace.value and self.namespace is not None:
+            taken, bound, refused = fit_namespace(d, self.namespace, names)
+            sizes.update(bound)
+            for dim, size in bound.items():
+                if dim in self.size_inputs:
+                    self.size_inputs[dim].value = size
+        drawn = d.sample_inputs(sizes=sizes, seed=int(self.seed.value))
+        arrays = {}
+        for name in names:
+            if name in taken:
+                arrays[name] = taken[name]
+                sources[name] = "namespace"
+            else:
+                arrays[name] = drawn[name]
+                sources[name] = "sampled"
+        return arrays, sizes, sources, refused
+
+    def run(self) -> CheckResult:
+        """Draw the inputs, compare, show the outcome; never raises."""
+        from IPython.display import HTML, display
+
+        self.runs += 1
+        self.status.value = "<span style='color:#555'>running&hellip;</span>"
+        self.button.disabled = True
+        try:
+            with self.output:
+                self.output.clear_output(wait=True)
+                result = self._run_inside()
+                display(HTML(_table_html(result)))
+                if result.error is None:
+                    self._show_plots(result)
+        finally:
+            self.button.disabled = False
+        self.last_result = result
+        self.status.value = _status_html(result, self.runs)
+        return result
+
+    def _run_inside(self) -> CheckResult:
+        method = self.method.value
+        try:
+            arrays, sizes, sources, refused = self._inputs()
+            chosen = self.variable.value
+            variables = list(self.derivation.variables) if chosen == ALL else [chosen]
+            step = float(self.step.value)
+            tolerance = float(self.tolerance.value)
+            if not (step > 0 and math.isfinite(step)):
+                raise ValueError(f"the step must be a positive number, not {step}")
+            if not (tolerance > 0 and math.isfinite(tolerance)):
+                raise ValueError(f"the tolerance must be a positive number, not {tolerance}")
+        except Exception as err:
+            return CheckResult(
+                method=method,
+                step=float("nan"),
+                tolerance=float("nan"),
+                seed=int(self.seed.value),
+                sizes={},
+                sources={},
+                error=f"{type(err).__name__}: {err}",
+            )
+        result = run_check(
+            self.derivation,
+            variables,
+            arrays,
+            method=method,
+            step=step,
+            tolerance=tolerance,
+            seed=int(self.seed.value),
+            sizes=sizes,
+            sources=sources,
+        )
+        for name, reason in refused.items():
+            result.notes.append(f"{name} in your namespace was not used: it {reason}.")
+        return result
+
+    def _show_plots(self, result: CheckResult) -> None:
+        import ipywidgets as w
+        from IPython.display import display
+
+        try:
+            images = []
+            figure = sweep_figure(result)
+            if figure is not None:
+                images.append(w.Image(value=_plot_png(figure), format="png"))
+            for check in result.checks:
+                figure = heatmap_figure(check)
+                if figure is not None:
+                    images.append(w.Image(value=_plot_png(figure), format="png"))
+            if images:
+                display(w.HBox(images, layout=w.Layout(flex_flow="row wrap")))
+        except Exception as err:  # a plot failure must not hide the verdict
+            print(f"(plots unavailable: {type(err).__name__}: {err})")

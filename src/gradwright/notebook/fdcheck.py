@@ -1,0 +1,456 @@
+"""The numbers behind the check panel: a generated derivative against finite differences.
+
+Pure NumPy (no widgets, no plotting), so that the comparison is testable on its own.
+"""
+
+from __future__ import annotations
+
+import math
+import time
+from dataclasses import dataclass, field
+
+import numpy as np
+
+__all__ = [
+    "METHODS",
+    "CheckResult",
+    "VariableCheck",
+    "default_step",
+    "default_tolerance",
+    "fit_namespace",
+    "run_check",
+]
+
+EPS = float(np.finfo(float).eps)
+METHODS = ("central", "forward", "complex step")
+DEFAULT_DIRECTIONS = 3
+ENTRYWISE_LIMIT = 144  # independent entries per variable checked one by one (2 evaluations each)
+SWEEP_EXPONENTS = np.linspace(-13.0, -1.0, 25)
+
+
+def default_step(method: str) -> float:
+    """Step relative to the variable's scale, max(1, rms of its entries).
+
+    Nocedal and Wright, *Numerical Optimization*, 2nd ed., section 8.1 (from memory): forward
+    differences are most accurate near h = eps^(1/2) * scale, central near h = eps^(1/3) * scale.
+    The complex step has no subtractive cancellation, so a tiny step is common practice.
+    """
+    if method == "central":
+        return EPS ** (1.0 / 3.0)
+    if method == "forward":
+        return EPS**0.5
+    if method == "complex step":
+        return 1e-20
+    raise ValueError(f"unknown method {method!r}; expected one of {', '.join(METHODS)}")
+
+
+def default_tolerance(method: str) -> float:
+    """Relative error accepted as agreement (common practice: a few digits above the method's
+    expected error, eps^(2/3) for central, eps^(1/2) for forward, eps for the complex step)."""
+    return {"central": 1e-6, "forward": 1e-4, "complex step": 1e-9}[method]
+
+
+@dataclass
+class VariableCheck:
+    """The comparison for one variable."""
+
+    variable: str
+    shape: tuple
+    directional: list = field(default_factory=list)  # (label, analytic, numeric, rel_error)
+    entrywise: np.ndarray | None = None  # rel error per entry, NaN where not checked
+    sweep: tuple | None = None  # (steps, {method: errors}) along the first direction
+    step: float = 0.0  # absolute step used
+
+    @property
+    def max_rel_error(self) -> float:
+        values = [e for *_, e in self.directional]
+        if self.entrywise is not None and np.isfinite(self.entrywise).any():
+            values.append(float(np.nanmax(self.entrywise)))
+        return max(values) if values else math.nan
+
+
+@dataclass
+class CheckResult:
+    """What a run of the check found; `passed` is False on any error."""
+
+    method: str
+    step: float
+    tolerance: float
+    seed: int
+    sizes: dict
+    sources: dict  # input name -> "sampled" | "namespace"
+    checks: list = field(default_factory=list)
+    error: str | None = None
+    notes: list = field(default_factory=list)
+    elapsed: float = 0.0
+
+    @property
+    def max_rel_error(self) -> float:
+        values = [c.max_rel_error for c in self.checks]
+        values = [v for v in values if not math.isnan(v)]
+        return max(values) if values else math.nan
+
+    @property
+    def passed(self) -> bool:
+        error = self.max_rel_error
+        return self.error is None and not math.isnan(error) and error <= self.tolerance
+
+    @property
+    def verdict(self) -> str:
+        if self.error is not None:
+            return "ERROR"
+        return "PASS" if self.passed else "FAIL"
+
+    def summary(self) -> str:
+        """One line: verdict, largest relative error against the tolerance, how it was measured."""
+        if self.error is not None:
+            return f"ERROR: {self.error}"
+        names = ", ".join(c.variable for c in self.checks)
+        relation = "<=" if self.passed else ">"
+        sizes = ", ".join(f"{k}={v}" for k, v in self.sizes.items())
+        return (
+            f"{self.verdict}: largest relative error {self.max_rel_error:.2e} {relation} "
+            f"tolerance {self.tolerance:.0e} ({self.method} differences, step {self.step:.1e}, "
+            f"wrt {names}; {sizes or 'no dims'}; seed {self.seed})"
+        )
+
+
+# --- inputs -------------------------------------------------------------------------------
+
+
+def _structure_fits(value: np.ndarray, structure: tuple) -> bool:
+    if not np.all(np.isfinite(value)):
+        return False
+    for word in structure:
+        if word in ("symmetric", "spd") and (value.ndim != 2 or not np.allclose(value, value.T)):
+            return False
+        if word == "spd":
+            try:
+                np.linalg.cholesky(value)
+            except np.linalg.LinAlgError:
+                return False
+        if word == "positive" and not np.all(value > 0):
+            return False
+        if word == "diagonal" and (value.ndim != 2 or np.any(value - np.diag(np.diag(value)))):
+            return False
+        if word == "orthogonal" and (
+            value.ndim != 2 or not np.allclose(value.T @ value, np.eye(value.shape[1]))
+        ):
+            return False
+    return True
+
+
+def fit_namespace(derivation, namespace: dict, names) -> tuple[dict, dict, dict]:
+    """Arrays of `namespace` named as the block's inputs whose shapes and structure fit.
+
+    Returns (arrays, bound dims, reasons for the ones refused); dims bound by an earlier array
+    must agree with later ones.
+    """
+    arrays: dict = {}
+    bound: dict = {}
+    refused: dict = {}
+    for name in names:
+        if name not in namespace:
+            continue
+        info = derivation.symbols.get(name)
+        if info is None:
+            continue
+        try:
+            value = np.asarray(namespace[name], dtype=float)
+        except (TypeError, ValueError):
+            refused[name] = "not a numeric array"
+            continue
+        shape = tuple(info.shape)
+        if value.ndim != len(shape):
+            refused[name] = f"has {value.ndim} axes, the block says {len(shape)}"
+            continue
+        trial = dict(bound)
+        ok = True
+        for dim, size in zip(shape, value.shape):
+            if isinstance(dim, int) or str(dim).isdigit():
+                ok = int(dim) == size
+            elif dim in trial:
+                ok = trial[dim] == size
+            else:
+                trial[dim] = size
+            if not ok:
+                refused[name] = f"shape {value.shape} does not fit {shape} with {bound}"
+                break
+        if not ok:
+            continue
+        if not _structure_fits(value, tuple(info.structure)):
+            refused[name] = f"is not {' '.join(info.structure)}"
+            continue
+        bound = trial
+        arrays[name] = value if value.ndim else float(value)
+    return arrays, bound, refused
+
+
+# --- directions ---------------------------------------------------------------------------
+
+
+def _direction(rng: np.random.Generator, value, structure: tuple) -> np.ndarray:
+    value = np.asarray(value)
+    raw = rng.standard_normal(value.shape)
+    if value.ndim == 2 and ("symmetric" in structure or "spd" in structure):
+        return (raw + raw.T) / 2.0
+    if value.ndim == 2 and "diagonal" in structure:
+        return np.diag(np.diag(raw))
+    if value.ndim == 2 and "orthogonal" in structure:
+        # Stay tangent to the orthogonal group: X K with K skew.
+        return value @ ((raw - raw.T) / 2.0)
+    return raw
+
+
+def _basis(value, structure: tuple):
+    """Unit perturbations of each independent entry, with the index they report to."""
+    value = np.asarray(value)
+    if value.ndim == 0:
+        yield (), np.ones(()), False
+        return
+    if value.ndim == 2 and "orthogonal" in structure:
+        return
+    symmetric = value.ndim == 2 and ("symmetric" in structure or "spd" in structure)
+    diagonal = value.ndim == 2 and "diagonal" in structure
+    for index in np.ndindex(value.shape):
+        if diagonal and index[0] != index[1]:
+            continue
+        if symmetric and index[0] > index[1]:
+            continue
+        basis = np.zeros(value.shape)
+        if symmetric and index[0] != index[1]:
+            # (E_ij + E_ji) / 2: the directional derivative along it is G_ij for a symmetric G.
+            basis[index] = basis[index[::-1]] = 0.5
+        else:
+            basis[index] = 1.0
+        yield index, basis, symmetric and index[0] != index[1]
+
+
+# --- the comparison -----------------------------------------------------------------------
+
+
+class _Evaluator:
+    def __init__(self, derivation, arrays: dict, variable: str):
+        self.function = derivation.function()
+        self.arrays = arrays
+        self.variable = variable
+        self.x0 = np.asarray(arrays[variable], dtype=float)
+
+    def at(self, offset) -> np.ndarray:
+        point = dict(self.arrays)
+        moved = self.x0 + offset
+        point[self.variable] = moved if moved.ndim else moved[()]
+        return np.asarray(self.function(**point))
+
+    def finite_difference(self, direction, h: float, method: str, f0=None) -> np.ndarray:
+        if method == "central":
+            return (self.at(h * direction) - self.at(-h * direction)) / (2.0 * h)
+        if method == "forward":
+            base = self.at(0.0 * direction) if f0 is None else f0
+            return (self.at(h * direction) - base) / h
+        if method == "complex step":
+            return np.imag(self.at(1j * h * direction)) / h
+        raise ValueError(f"unknown method {method!r}")
+
+
+def _noise(method: str, f0: np.ndarray, h: float) -> float:
+    """Rounding noise of a difference quotient, about eps*|f|/h (Nocedal and Wright, 8.1, from
+    memory); the complex step has none beyond the function's own rounding."""
+    magnitude = 1.0 + float(np.max(np.abs(f0))) if np.size(f0) else 1.0
+    if method == "complex step":
+        return EPS * magnitude
+    return EPS * magnitude / h
+
+
+def _rel(diff: float, scale: float, floor: float) -> float:
+    return float(diff / max(scale, floor, np.finfo(float).tiny))
+
+
+def run_check(
+    derivation,
+    variables,
+    arrays: dict,
+    *,
+    method: str = "central",
+    step: float | None = None,
+    tolerance: float | None = None,
+    seed: int = 0,
+    sizes: dict | None = None,
+    sources: dict | None = None,
+    directions: int = DEFAULT_DIRECTIONS,
+    entrywise_limit: int = ENTRYWISE_LIMIT,
+    sweep: bool = True,
+) -> CheckResult:
+    """Compare the generated gradient (scalar targets) or JVP/VJP (array targets) of each variable
+    with finite differences along random directions, and entry by entry for small variables.
+
+    Relative errors are taken against the size of the terms compared, with a floor of 100x the
+    difference quotient's rounding noise, so that exact zeros in a gradient do not divide by zero.
+    """
+    if method not in METHODS:
+        raise ValueError(f"unknown method {method!r}; expected one of {', '.join(METHODS)}")
+    step = default_step(method) if step is None else float(step)
+    tolerance = default_tolerance(method) if tolerance is None else float(tolerance)
+    result = CheckResult(
+        method=method,
+        step=step,
+        tolerance=tolerance,
+        seed=int(seed),
+        sizes=dict(sizes or {}),
+        sources=dict(sources or {}),
+    )
+    started = time.perf_counter()
+    rng = np.random.default_rng(seed)
+    try:
+        for variable in variables:
+            result.checks.append(
+                _check_variable(
+                    derivation,
+                    variable,
+                    arrays,
+                    method,
+                    step,
+                    rng,
+                    directions,
+                    entrywise_limit,
+                    sweep,
+                )
+            )
+    except Exception as err:  # shown in the panel, never raised through it
+        result.error = f"{type(err).__name__}: {err}"
+    result.elapsed = time.perf_counter() - started
+    if result.error is None:
+        for check in result.checks:
+            tiny = [abs(a) for _, a, _, _ in check.directional]
+            if tiny and max(tiny) == 0.0:
+                result.notes.append(
+                    f"The derivative with respect to {check.variable} is zero at this point: "
+                    "relative errors say little here; try another seed or other inputs."
+                )
+    return result
+
+
+def _check_variable(derivation, variable, arrays, method, step, rng, directions, limit, sweep):
+    info = derivation.symbols[variable]
+    structure = tuple(info.structure)
+    evaluator = _Evaluator(derivation, arrays, variable)
+    x0 = evaluator.x0
+    scale = max(1.0, float(np.sqrt(np.mean(x0**2)))) if x0.size else 1.0
+    h = step * scale
+    check = VariableCheck(variable=variable, shape=tuple(x0.shape), step=h)
+    f0 = evaluator.at(np.zeros_like(x0))
+    floor = 100.0 * _noise(method, f0, h)
+    scalar_target = bool(derivation.is_scalar)
+    if scalar_target:
+        gradient = np.asarray(derivation.gradient_function(variable)(**arrays), dtype=float)
+        if gradient.shape != x0.shape:
+            raise ValueError(
+                f"the gradient with respect to {variable} has shape {gradient.shape}, "
+                f"the variable {x0.shape}"
+            )
+    else:
+        jvp = derivation.jvp_function(variable)
+        vjp = derivation.vjp_function(variable)
+
+    first = None
+    for k in range(directions):
+        v = _direction(rng, x0, structure)
+        numeric = evaluator.finite_difference(v, h, method, f0)
+        if scalar_target:
+            analytic = float(np.sum(gradient * v))
+            scale_terms = float(np.sum(np.abs(gradient * v)))
+            numeric = float(numeric)
+            rel = _rel(abs(analytic - numeric), max(scale_terms, abs(numeric)), floor)
+            check.directional.append((f"direction {k + 1}", analytic, numeric, rel))
+        else:
+            analytic_arr = np.asarray(jvp(v if v.ndim else v[()], **arrays))
+            diff = float(np.max(np.abs(analytic_arr - numeric))) if numeric.size else 0.0
+            size = max(float(np.max(np.abs(analytic_arr))), float(np.max(np.abs(numeric))))
+            rel = _rel(diff, size, floor)
+            check.directional.append(
+                (
+                    f"JVP direction {k + 1}",
+                    float(np.linalg.norm(analytic_arr)),
+                    float(np.linalg.norm(numeric)),
+                    rel,
+                )
+            )
+            # The VJP through its defining identity <W, J v> = <J^T W, v>.
+            w = rng.standard_normal(np.shape(f0))
+            back = np.asarray(vjp(w if w.ndim else w[()], **arrays))
+            left = float(np.sum(back * v))
+            right = float(np.sum(w * numeric))
+            terms = float(np.sum(np.abs(back * v)))
+            rel_vjp = _rel(abs(left - right), max(terms, abs(right)), floor * np.sum(np.abs(w)))
+            check.directional.append((f"VJP direction {k + 1}", left, right, rel_vjp))
+        if first is None:
+            first = v
+
+    if first is not None and sweep:
+        check.sweep = _sweep(
+            derivation,
+            evaluator,
+            first,
+            scale,
+            f0,
+            arrays,
+            variable,
+            gradient if scalar_target else None,
+            None if scalar_target else jvp,
+        )
+
+    basis = list(_basis(x0, structure))
+    if basis and len(basis) <= limit:
+        errors = np.full(x0.shape, np.nan)
+        if scalar_target:
+            top = max(float(np.max(np.abs(gradient))), 0.0)
+            rows = []
+            for index, e, mirror in basis:
+                numeric = float(evaluator.finite_difference(e, h, method, f0))
+                rows.append((index, mirror, float(np.sum(gradient * e)), numeric))
+            top = max([top] + [abs(n) for *_, n in rows])
+            for index, mirror, analytic, numeric in rows:
+                errors[index] = _rel(abs(analytic - numeric), top, floor)
+                if mirror:
+                    errors[index[::-1]] = errors[index]
+        else:
+            columns = []
+            for index, e, mirror in basis:
+                numeric = evaluator.finite_difference(e, h, method, f0)
+                analytic = np.asarray(jvp(e if e.ndim else e[()], **arrays))
+                diff = float(np.max(np.abs(analytic - numeric), initial=0.0))
+                columns.append((index, mirror, diff, float(np.max(np.abs(analytic), initial=0.0))))
+            top = max([c[3] for c in columns] + [0.0])
+            for index, mirror, diff, _ in columns:
+                errors[index] = _rel(diff, top, floor)
+                if mirror:
+                    errors[index[::-1]] = errors[index]
+        check.entrywise = errors
+    return check
+
+
+def _sweep(derivation, evaluator, v, scale, f0, arrays, variable, gradient, jvp):
+    """Error against step size along one direction, for every method the formula allows."""
+    methods = ["central", "forward"]
+    if getattr(derivation, "supports_complex_step", False):
+        methods.append("complex step")
+    if gradient is not None:
+        analytic = np.asarray(np.sum(gradient * v))
+        terms = float(np.sum(np.abs(gradient * v)))
+    else:
+        analytic = np.asarray(jvp(v if v.ndim else v[()], **arrays))
+        terms = float(np.max(np.abs(analytic), initial=0.0))
+    steps = scale * 10.0**SWEEP_EXPONENTS
+    curves = {}
+    for method in methods:
+        errors = []
+        for h in steps:
+            try:
+                with np.errstate(all="ignore"):
+                    numeric = evaluator.finite_difference(v, h, method, f0)
+                diff = float(np.max(np.abs(analytic - numeric), initial=0.0))
+                errors.append(diff / max(terms, np.finfo(float).tiny))
+            except Exception:  # the step left the formula's domain (e.g. spd); no point
+                errors.append(math.nan)
+        curves[method] = np.array(errors)
+    return steps, curves

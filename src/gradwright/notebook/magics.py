@@ -1,0 +1,186 @@
+"""IPython magics of gradwright: `%%derive` shows a block's derivation, injects its NumPy functions
+and attaches a check panel; `%identities` opens the identity catalogue.
+
+Load with ``%load_ext gradwright``.
+"""
+
+from __future__ import annotations
+
+import keyword
+
+from IPython.core.error import UsageError
+from IPython.core.magic import Magics, cell_magic, line_magic, magics_class
+from IPython.core.magic_arguments import argument, magic_arguments, parse_argstring
+
+from .render import SHOW_CHOICES, derivation_bundle, shape_table_bundle
+
+__all__ = ["GradwrightMagics", "load_ipython_extension"]
+
+
+def _publish(bundle: dict) -> None:
+    from IPython.display import publish_display_data
+
+    publish_display_data(bundle)
+
+
+def _kind_of(value) -> str:
+    kind = type(value).__name__
+    if callable(value):
+        return "a function"
+    return f"{'an' if kind[:1].lower() in 'aeiou' else 'a'} {kind}"
+
+
+def _check_name(name: str) -> None:
+    if not name.isidentifier() or keyword.iskeyword(name):
+        raise UsageError(f"--name {name!r} is not a Python name")
+
+
+@magics_class
+class GradwrightMagics(Magics):
+    """The magics; `last_derivation` is the most recent `%%derive` (for `%identities`)."""
+
+    def __init__(self, shell=None):
+        super().__init__(shell)
+        self._injected: dict = {}  # name -> the object we put there
+        self.last_derivation = None
+
+    # -- %%derive -------------------------------------------------------------------------
+    @magic_arguments()
+    @argument(
+        "variables",
+        nargs="+",
+        metavar="VAR",
+        help="the variables to differentiate with respect to; every other declared symbol "
+        "is a constant",
+    )
+    @argument(
+        "--name",
+        "-n",
+        metavar="NAME",
+        help="base name of the injected functions (default: the target's name)",
+    )
+    @argument(
+        "--show",
+        choices=SHOW_CHOICES,
+        default="steps",
+        help="what to display: every step with its rule (default), the result only, or nothing "
+        "but the list of injected names",
+    )
+    @argument("--no-check", action="store_true", help="do not attach the check panel")
+    @argument(
+        "--force",
+        action="store_true",
+        help="overwrite names that already hold something you made",
+    )
+    @argument(
+        "--export",
+        metavar="PATH",
+        help="also write a standalone notebook (.ipynb) of this derivation to PATH",
+    )
+    @cell_magic
+    def derive(self, line, cell):
+        """Derive the target of a formula block (the cell body) with respect to VAR ...
+
+        The functions are injected as NAME (value), grad_NAME (gradient, a tuple for several
+        variables), NAME_pack / NAME_unpack / NAME_objective (for scipy.optimize), NAME_check
+        (the check panel) and NAME_derivation; array targets get jvp_NAME, vjp_NAME and
+        jacobian_NAME instead of grad_NAME and NAME_objective. Every function takes the arrays
+        as keyword arguments named as in the block.
+        """
+        args = parse_argstring(self.derive, line)
+        if not cell.strip():
+            raise UsageError(
+                "the cell is empty: write declarations like `X: (n, n)` and a last line "
+                "`f = ...` below %%derive"
+            )
+        derivation = self._derive(cell, list(args.variables))
+        name = args.name or derivation.target
+        _check_name(name)
+
+        from .functions import Injected, injections
+
+        plan = injections(derivation, name)
+        panel = None
+        if not args.no_check:
+            from .check_panel import CheckPanel
+
+            panel = CheckPanel(derivation, namespace=self.shell.user_ns)
+            plan.insert(
+                len(plan) - 1,
+                Injected(
+                    f"{name}_check", panel, f"{name}_check  the check panel (.run(), .last_result)"
+                ),
+            )
+        self._refuse_clobbering([item.name for item in plan], args.force)
+
+        if args.export:
+            self._export(derivation, args.export)
+
+        if args.show != "none":
+            _publish(derivation_bundle(derivation, args.show))
+            _publish(shape_table_bundle(derivation))
+
+        for item in plan:
+            self.shell.user_ns[item.name] = item.value
+            self._injected[item.name] = item.value
+        self.last_derivation = derivation
+
+        print("Injected:")
+        for item in plan:
+            print(f"  {item.describes}")
+        if args.export:
+            print(f"Exported a standalone notebook to {args.export}")
+        if panel is not None:
+            from IPython.display import display
+
+            display(panel)
+
+    def _derive(self, cell: str, variables: list):
+        from gradwright import FormulaError, derive
+
+        try:
+            return derive(cell, wrt=variables)
+        except FormulaError as err:
+            raise UsageError(str(err)) from None
+
+    def _refuse_clobbering(self, names, force: bool) -> None:
+        user_ns = self.shell.user_ns
+        taken = [n for n in names if n in user_ns and user_ns[n] is not self._injected.get(n)]
+        if taken and not force:
+            which = ", ".join(f"{n} ({_kind_of(user_ns[n])})" for n in taken)
+            verb = "holds" if len(taken) == 1 else "hold"
+            raise UsageError(
+                f"{which} already {verb} something you made, so nothing was injected. "
+                "Add --force to overwrite, or choose other names with --name NAME."
+            )
+
+    def _export(self, derivation, path: str) -> None:
+        from .export import write_notebook
+
+        try:
+            write_notebook(derivation, path)
+        except OSError as err:
+            raise UsageError(f"cannot write {path}: {err.strerror or err}") from None
+
+    # -- %identities ----------------------------------------------------------------------
+    @magic_arguments()
+    @argument("words", nargs="*", help="search words, e.g. trace inverse")
+    @argument("--family", "-f", metavar="FAMILY", help="show only this family (a tag)")
+    @line_magic
+    def identities(self, line):
+        """Open the identity catalogue, searched for WORDS, with the identities that apply to
+        the last %%derive's target a toggle away."""
+        args = parse_argstring(self.identities, line)
+        from .identity_panel import IdentityPanel
+
+        panel = IdentityPanel(
+            query=" ".join(args.words), family=args.family, derivation=self.last_derivation
+        )
+        from IPython.display import display
+
+        display(panel)
+
+
+def load_ipython_extension(ipython) -> None:
+    """Register gradwright's magics (`%load_ext gradwright`)."""
+    ipython.register_magics(GradwrightMagics)
