@@ -58,9 +58,13 @@ def identity_html(identity, note: str = "") -> str:
 
 
 def _families(catalogue) -> list[str]:
+    """The family tags in use (the catalogue's declared families when it names them)."""
     tags = set()
     for identity in catalogue.all():
         tags.update(getattr(identity, "tags", ()) or ())
+    declared = getattr(catalogue, "FAMILY_TAGS", None)
+    if declared:
+        tags &= set(declared)
     return sorted(tags)
 
 
@@ -157,9 +161,7 @@ class IdentityPanel:
         return [(identity, "") for identity in found]
 
     def _target_for_matching(self):
-        from gradwright.language import parse_block
-
-        return parse_block(self.derivation.text)
+        return self.derivation.text
 
     def refresh(self) -> None:
         """Recompute the results and show them; errors are shown in the panel."""
