@@ -34,11 +34,12 @@ from scipy import optimize
     ),
     (
         "code",
-        """# Invented data: 6 probes, 240 days, a covariance that decays with distance along the slope.
+        """# Invented data: 6 probes, 240 days; covariance decays with distance along the slope.
 rng = np.random.default_rng(2031)
 n_probes, n_days = 6, 240
 depth_m = np.linspace(0.0, 2.5, n_probes)
-true_cov = 0.04 * np.exp(-np.abs(depth_m[:, None] - depth_m[None, :]) / 0.9) + 0.002 * np.eye(n_probes)
+gap = np.abs(depth_m[:, None] - depth_m[None, :])
+true_cov = 0.04 * np.exp(-gap / 0.9) + 0.002 * np.eye(n_probes)
 readings = rng.multivariate_normal(np.full(n_probes, 0.31), true_cov, size=n_days)
 Z = readings - readings.mean(axis=0)
 days = float(n_days)
@@ -124,15 +125,15 @@ from scipy import optimize
     ),
     (
         "code",
-        """# Invented data: 9 stores, 16 weeks; demand driven by store size, a seasonal wave and a promotion.
+        """# Invented data: 9 stores, 16 weeks; store size, a seasonal wave and a promotion.
 rng = np.random.default_rng(7)
 n_stores, n_weeks, rank = 9, 16, 3
 size = rng.uniform(0.6, 1.8, n_stores)
 season = 1.0 + 0.3 * np.sin(np.linspace(0, 2 * np.pi, n_weeks))
 promo = np.zeros(n_weeks); promo[[4, 5, 11]] = 1.0
 urban = rng.uniform(0, 1, n_stores)
-P = 100 * (np.outer(size, season) + 0.4 * np.outer(urban, promo)) + rng.normal(0, 3, (n_stores, n_weeks))
-P = P / 100
+P = np.outer(size, season) + 0.4 * np.outer(urban, promo)
+P = P + rng.normal(0, 0.03, (n_stores, n_weeks))
 mu = 0.05""",
     ),
     (
@@ -168,8 +169,10 @@ def over_V(flat, U):
 
 history = []
 for sweep in range(8):
-    U = optimize.minimize(over_U, U.ravel(), args=(V,), jac=True, method="L-BFGS-B").x.reshape(n_stores, rank)
-    V = optimize.minimize(over_V, V.ravel(), args=(U,), jac=True, method="L-BFGS-B").x.reshape(n_weeks, rank)
+    step = optimize.minimize(over_U, U.ravel(), args=(V,), jac=True, method="L-BFGS-B")
+    U = step.x.reshape(n_stores, rank)
+    step = optimize.minimize(over_V, V.ravel(), args=(U,), jac=True, method="L-BFGS-B")
+    V = step.x.reshape(n_weeks, rank)
     history.append(loss(P=P, U=U, V=V, mu=mu))
 print("loss after each sweep:", np.round(history, 6))""",
     ),
@@ -190,8 +193,8 @@ print(fit.message, "loss", fit.fun)""",
     ),
     (
         "md",
-        """A check from outside: at a minimum of this penalized problem the product `U Vᵀ` keeps the top
-singular vectors of `P` with each singular value shrunk by `mu` (the variational form of the
+        """A check from outside: at a minimum of this penalized problem the product `U Vᵀ` keeps
+the top singular vectors of `P` with each singular value shrunk by `mu` (the variational form of the
 nuclear norm, from memory; common practice in matrix completion).""",
     ),
     (
@@ -250,7 +253,8 @@ misfit = trace(E.T @ solve(S, E))""",
     ("md", "### Fit with the derived gradient"),
     (
         "code",
-        """fit = optimize.minimize(lambda b: gls_objective(b, Y=Y, X=X, S=S), gls_pack(B=np.zeros((p, g))),
+        """start = gls_pack(B=np.zeros((p, g)))
+fit = optimize.minimize(lambda b: gls_objective(b, Y=Y, X=X, S=S), start,
                         jac=True, method="BFGS", options={"gtol": 1e-9})
 B_fit = gls_unpack(fit.x)
 print(fit.message)""",

@@ -157,8 +157,9 @@ def _check_code(derivation, roles: dict) -> str:
     value = roles["value"]
     lines = [
         "# Finite-difference check of the generated derivative: central differences with the",
-        "# step h = eps**(1/3) * max(1, rms x) (Nocedal and Wright, Numerical Optimization, 2nd ed.,",
-        "# section 8.1, from memory), along random directions honouring each variable's structure.",
+        "# step h = eps**(1/3) * max(1, rms x) (Nocedal and Wright, Numerical Optimization,",
+        "# 2nd ed., section 8.1, from memory), along random directions honouring each",
+        "# variable's structure.",
         "import numpy as np",
         "",
         "rng = np.random.default_rng(0)",
