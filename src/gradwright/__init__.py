@@ -1,1 +1,72 @@
-"""gradwright."""
+"""gradwright: matrix differential calculus for the notebook.
+
+Write a matrix formula with its shapes; get the derivation, the gradient or Jacobian, and
+fast NumPy code for them.
+
+>>> from gradwright import derive
+>>> d = derive("sum((X @ w - y)**2)", wrt="w", shapes={"X": ("n", "p"), "w": ("p",), "y": ("n",)})
+>>> d.gradient_function()(X=[[1.0, 0.0], [0.0, 2.0]], w=[1.0, 1.0], y=[0.0, 0.0]).tolist()
+[2.0, 8.0]
+"""
+
+from __future__ import annotations
+
+from .derivation import Derivation, Step, SymbolInfo
+from .errors import FormulaError, NotSupportedError
+
+__all__ = [
+    "Derivation",
+    "FormulaError",
+    "NotSupportedError",
+    "Step",
+    "SymbolInfo",
+    "derive",
+    "load_ipython_extension",
+]
+__version__ = "0.1.0"
+
+
+def derive(text: str, wrt, *, shapes: dict | None = None, sizes: dict | None = None) -> Derivation:
+    """Derive a block (or one expression with `shapes`) with respect to the variables `wrt`.
+
+    `wrt` is a name or a list of names of declared symbols; every other symbol is a constant.
+    `sizes` optionally gives typical dim sizes for the generated code's cost model.
+    """
+    from .language import parse_block
+
+    if isinstance(wrt, str):
+        wrt_list = [w for w in wrt.replace(",", " ").split()]
+    elif isinstance(wrt, (list, tuple)):
+        wrt_list = list(wrt)
+    else:
+        raise FormulaError(f"wrt must be a name or a list of names, got {type(wrt).__name__}")
+    block = parse_block(text, shapes=shapes)
+    if not wrt_list:
+        raise FormulaError("name at least one variable to differentiate with respect to")
+    seen = []
+    for w in wrt_list:
+        if not isinstance(w, str):
+            raise FormulaError(f"variable names must be text, got {w!r}")
+        if w in seen:
+            raise FormulaError(f"variable {w} is named twice")
+        if w in block.definitions:
+            raise FormulaError(
+                f"{w} is defined in the block, not declared: derivatives are taken with respect "
+                "to declared symbols"
+            )
+        if w not in block.declarations:
+            known = ", ".join(block.declarations) or "none"
+            raise FormulaError(f"unknown variable {w!r}: declare it in the block (declared: {known})")
+        seen.append(w)
+    if sizes is not None:
+        for k, v in sizes.items():
+            if isinstance(v, bool) or not isinstance(v, int) or v <= 0:
+                raise FormulaError(f"sizes[{k!r}] must be a positive integer, got {v!r}")
+    return Derivation(block, tuple(seen), sizes)
+
+
+def load_ipython_extension(ipython):  # pragma: no cover - exercised by the notebook tests
+    """`%load_ext gradwright`."""
+    from .notebook.magics import load_ipython_extension as load
+
+    load(ipython)

@@ -293,7 +293,7 @@ def injections(derivation, name: str) -> list[Injected]:
         )
     )
     if d.is_scalar:
-        objective = packer.objective(d.value_and_gradient_function(*variables))
+        objective = packer.objective(d.value_and_gradient_function())
         constants = [a for a in args if a not in variables]
         objective = _named(
             objective,

@@ -56,6 +56,8 @@ def _strip_lhs(rendered: str, lhs: str) -> str:
 
 def _steps(derivation, show: str):
     steps = list(derivation.steps)
+    if len(steps) > 1 and steps[0].kind == "differential" and not steps[0].rule:
+        steps = steps[1:]  # "d f = d(f)" says nothing yet
     if show == "result":
         results = [s for s in steps if s.kind in _RESULT_KINDS]
         # The last line per variable is the identified result.
@@ -99,7 +101,7 @@ def derivation_text(derivation, show: str = "steps") -> str:
     rows = []
     previous_lhs = None
     for step in _steps(derivation, show):
-        lhs = _plain_lhs(step)
+        lhs = _plain_lhs(step, derivation.target)
         rhs = _strip_lhs(_call(step.text), lhs)
         shown = "" if lhs == previous_lhs else lhs
         rows.append((shown, rhs, step.rule or ""))
@@ -115,17 +117,15 @@ def derivation_text(derivation, show: str = "steps") -> str:
     return "\n".join(out)
 
 
-def _plain_lhs(step) -> str:
-    lhs = getattr(step, "lhs_text", None)
-    if lhs:
-        return lhs
-    latex = step.lhs_latex or ""
-    # A readable fallback for the usual left-hand sides.
-    latex = re.sub(r"\\nabla_\{?([^}\s]+)\}?", r"grad_\1 ", latex)
-    latex = re.sub(r"\\mathrm\{d\}|\\operatorname\{d\}", "d", latex)
-    latex = re.sub(r"\\(mathrm|operatorname|mathbf|boldsymbol)\{([^}]*)\}", r"\2", latex)
-    latex = latex.replace("\\,", "").replace("{", "").replace("}", "").replace("\\", "")
-    return latex.strip()
+def _plain_lhs(step, target: str) -> str:
+    """The left-hand side in plain text (the terminal fallback)."""
+    if step.kind == "gradient":
+        return f"∂{target}/∂{step.var}"
+    if step.kind == "jacobian":
+        return f"∂vec({target})/∂vec({step.var})ᵀ"
+    if "vec" in (step.lhs_latex or ""):
+        return f"vec(d{target})"
+    return f"d{target}"
 
 
 def derivation_bundle(derivation, show: str = "steps") -> dict:

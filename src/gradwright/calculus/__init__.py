@@ -1,0 +1,19 @@
+"""Matrix differential calculus: the rules table, adjoints (identification), Kronecker forms.
+
+`differential(e, wrt)` is linear in the differential leaves; everything else derives from it.
+"""
+
+from .adjoint import ADJOINTS, adjoint
+from .kronecker import kronecker_form
+from .rules import RULES, differential, expand_once, has_pending, pending
+
+__all__ = [
+    "ADJOINTS",
+    "RULES",
+    "adjoint",
+    "differential",
+    "expand_once",
+    "has_pending",
+    "kronecker_form",
+    "pending",
+]

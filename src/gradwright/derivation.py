@@ -1,0 +1,654 @@
+"""A derivation: the block, its differential, identified derivatives, steps and NumPy functions.
+
+Everything is computed from the one differential value `d(f)`, lazily, and cached.
+"""
+
+from __future__ import annotations
+
+import functools
+from dataclasses import dataclass
+
+from . import expr as E
+from .calculus import adjoint, differential, expand_once, has_pending, kronecker_form
+from .errors import FormulaError, NotSupportedError
+from .language import Block
+from .printing import latex, symbol_latex, text
+from .printing import numpy_code as C
+from .sampling import default_sizes, needs_positive, sample_inputs
+from .simplify import simplify
+
+MAX_STEPS = 40
+
+
+@dataclass(frozen=True)
+class SymbolInfo:
+    name: str
+    shape: tuple  # NumPy's shape: (), ("n",), ("m", "n")
+    structure: tuple
+    role: str  # "variable", "constant", "defined", "target"
+
+
+@dataclass(frozen=True)
+class Step:
+    """One line of the derivation: `lhs = expr`, produced by `rule`."""
+
+    kind: str  # "differential", "gradient", "jacobian"
+    expr: E.Expr
+    rule: str
+    lhs_latex: str
+    var: str | None = None
+
+    def latex(self) -> str:
+        return latex(self.expr)
+
+    def text(self) -> str:
+        return text(self.expr)
+
+
+class Derivation:
+    """The result of `derive()`; see docs in README for the full tour.
+
+    >>> from gradwright import derive
+    >>> d = derive("X: (n, p)\\nW: (p, k)\\nY: (n, k)\\nf = sum((X @ W - Y)**2)", wrt="W")
+    >>> d.gradient("W").key() == d.gradient("W").key()
+    True
+    >>> print(text(d.gradient("W")))
+    2 * (X.T @ (X @ W - Y))
+    """
+
+    def __init__(self, block: Block, wrt: tuple[str, ...], sizes: dict | None = None):
+        self.block = block
+        self.text_block = block.text
+        self.variables = wrt
+        self.expr = block.expr
+        self.target = block.target
+        self.size_hints = dict(sizes or {})
+        self._vars = {v: block.declarations[v] for v in wrt}
+        self._functions: dict | None = None
+        self._source: str | None = None
+
+    # --- description -----------------------------------------------------------------------------
+
+    @property
+    def text(self) -> str:
+        return self.text_block
+
+    @property
+    def target_shape(self) -> tuple:
+        return E.user_shape(self.expr.shape)
+
+    @property
+    def is_scalar(self) -> bool:
+        return self.expr.is_scalar
+
+    @property
+    def dims(self) -> dict:
+        return {k: list(v) for k, v in self.block.dims.items()}
+
+    @functools.cached_property
+    def symbols(self) -> dict:
+        out = {}
+        for name, sym in self.block.declarations.items():
+            role = "variable" if name in self.variables else "constant"
+            out[name] = SymbolInfo(name, E.user_shape(sym.shape), _words(sym), role)
+        for name, named in self.block.definitions.items():
+            role = "target" if name == self.target else "defined"
+            out[name] = SymbolInfo(name, E.user_shape(named.shape), (), role)
+        return out
+
+    def shape_table(self) -> list[dict]:
+        """Every declared and defined symbol with shape, structure and role."""
+        rows = []
+        for info in self.symbols.values():
+            rows.append(
+                {
+                    "symbol": info.name,
+                    "shape": _shape_text(info.shape),
+                    "structure": ", ".join(info.structure),
+                    "role": info.role,
+                }
+            )
+        return rows
+
+    def arguments(self) -> list[str]:
+        """The symbols every generated function requires (in block order)."""
+        used = self.expr.symbols
+        return [n for n in self.block.declarations if n in used]
+
+    def __repr__(self):
+        return f"<Derivation of {self.target} with respect to {', '.join(self.variables)}>"
+
+    # --- the calculus --------------------------------------------------------------------------
+
+    @functools.lru_cache(maxsize=None)  # noqa: B019 - a derivation lives as long as its user
+    def _differential(self, vars_: tuple) -> E.Expr:
+        return simplify(differential(self.expr, frozenset(vars_)))
+
+    def differential(self) -> E.Expr:
+        """d(target) with respect to all variables, linear in their differentials."""
+        return self._differential(self.variables)
+
+    def _check_var(self, var: str | None) -> str:
+        if var is None:
+            if len(self.variables) != 1:
+                raise FormulaError(
+                    f"name the variable: this derivation has {len(self.variables)} "
+                    f"({', '.join(self.variables)})"
+                )
+            return self.variables[0]
+        if var not in self._vars:
+            raise FormulaError(
+                f"{var!r} is not a variable of this derivation "
+                f"(variables: {', '.join(self.variables)})"
+            )
+        return var
+
+    @functools.lru_cache(maxsize=None)  # noqa: B019
+    def _raw_gradient(self, var: str, seed_is_cotangent: bool = False) -> E.Expr:
+        lin = self._differential((var,))
+        seed = E.ONE if not seed_is_cotangent else _cotangent(self.expr.shape)
+        g = adjoint(lin, seed).get(var)
+        sym = self._vars[var]
+        if g is None:
+            return E.zero_like(sym.shape)
+        return simplify(g)
+
+    @functools.lru_cache(maxsize=None)  # noqa: B019
+    def _gradient(self, var: str) -> E.Expr:
+        if not self.is_scalar:
+            raise FormulaError(
+                f"the target {self.target} is a {E.describe(self.expr)}, not a scalar: use "
+                "jacobian(), jvp_function() or vjp_function()"
+            )
+        g = self._raw_gradient(var)
+        return _project(g, self._vars[var])
+
+    def gradient(self, var: str | None = None) -> E.Expr:
+        """The gradient of a scalar target, shaped like the variable."""
+        return self._gradient(self._check_var(var))
+
+    @functools.lru_cache(maxsize=None)  # noqa: B019
+    def _jacobian(self, var: str) -> E.Expr:
+        return simplify(kronecker_form(self._differential((var,)), self._vars[var]))
+
+    def jacobian(self, var: str | None = None) -> E.Expr:
+        """d vec(F) / d vec(X)^T in compact Kronecker form (raises NotSupportedError if none)."""
+        return self._jacobian(self._check_var(var))
+
+    @functools.lru_cache(maxsize=None)  # noqa: B019
+    def _hvp_expr(self, var: str) -> E.Expr:
+        g = self._gradient(var)
+        return simplify(differential(g, frozenset([var])))
+
+    # --- steps ---------------------------------------------------------------------------------
+
+    @functools.cached_property
+    def steps(self) -> list[Step]:
+        wrt = frozenset(self.variables)
+        lhs = r"\mathrm{d}" + _name_latex(self.target)
+        steps = [Step("differential", E.D(E.Named(self.target, self.expr)), "", lhs)]
+        current = E.D(self.expr) if not (self.expr.symbols & wrt) == set() else E.zero_like(
+            self.expr.shape
+        )
+        steps.append(Step("differential", current, "write d in front", lhs))
+        guard = 0
+        while has_pending(current) and guard < MAX_STEPS:
+            names: list[str] = []
+            while True:
+                current, rules, substantive = expand_once(current, wrt)
+                names += [r for r in rules if r not in names]
+                if substantive or not has_pending(current):
+                    break
+            guard += 1
+            steps.append(Step("differential", current, "; ".join(names), lhs))
+        simple = simplify(current)
+        if simple != current:
+            steps.append(Step("differential", simple, "collect terms", lhs))
+        if self.is_scalar:
+            forms = []
+            for v in self.variables:
+                forms.append(_pairing(self._gradient(v), self._vars[v]))
+            form = E.add(*forms)
+            rule = "rearrange under the trace: tr(A B) = tr(B A), tr(A) = tr(Aᵀ)"
+            if all(self._vars[v].is_scalar for v in self.variables):
+                rule = "collect the coefficient of each differential"
+            if form != steps[-1].expr:
+                steps.append(Step("differential", form, rule, lhs))
+            for v in self.variables:
+                sym = self._vars[v]
+                why = "read off the gradient"
+                raw = self._raw_gradient(v)
+                if E.is_matrix_shape(sym.shape) and (sym.structure & E.SYMMETRIC_WORDS):
+                    if "diagonal" in sym.structure:
+                        why = f"keep the diagonal, since {v} is diagonal"
+                    elif not E.is_symmetric(raw):
+                        why = f"symmetric part, since {v} is symmetric"
+                steps.append(
+                    Step(
+                        "gradient",
+                        self._gradient(v),
+                        why,
+                        rf"\frac{{\partial {_name_latex(self.target)}}}{{\partial {symbol_latex(v)}}}",
+                        v,
+                    )
+                )
+        else:
+            parts = []
+            jac = {}
+            for v in self.variables:
+                try:
+                    jac[v] = self._jacobian(v)
+                except NotSupportedError:
+                    jac = None
+                    break
+            if jac is not None:
+                for v in self.variables:
+                    parts.append(E.matmul(jac[v], E.vec(E.Differential(self._vars[v]))))
+                steps.append(
+                    Step(
+                        "differential",
+                        E.add(*parts),
+                        "vectorize: vec(A dX B) = (Bᵀ ⊗ A) vec(dX)",
+                        r"\operatorname{vec}(\mathrm{d}" + _name_latex(self.target) + ")",
+                    )
+                )
+                for v in self.variables:
+                    steps.append(
+                        Step(
+                            "jacobian",
+                            jac[v],
+                            "read off the Jacobian",
+                            rf"\frac{{\partial \operatorname{{vec}} {_name_latex(self.target)}}}"
+                            rf"{{\partial (\operatorname{{vec}} {symbol_latex(v)})^{{\top}}}}",
+                            v,
+                        )
+                    )
+        return steps
+
+    def latex(self) -> str:
+        """The derivation as one aligned environment, rule names beside each line."""
+        lines = []
+        prev_lhs = None
+        for step in self.steps[1:]:
+            lhs = step.lhs_latex if step.lhs_latex != prev_lhs else ""
+            rule = rf" && \text{{{_latex_text(step.rule)}}}" if step.rule else ""
+            lines.append(f"{lhs} &= {step.latex()}{rule}")
+            prev_lhs = step.lhs_latex
+        return "\\begin{aligned}\n" + " \\\\\n".join(lines) + "\n\\end{aligned}"
+
+    def text_steps(self) -> str:
+        out = []
+        for step in self.steps[1:]:
+            lhs = _plain_lhs(step, self.target)
+            out.append(f"{lhs} = {step.text()}" + (f"    [{step.rule}]" if step.rule else ""))
+        return "\n".join(out)
+
+    def result_latex(self) -> str:
+        lines = []
+        for step in self.steps:
+            if step.kind in ("gradient", "jacobian"):
+                lines.append(f"{step.lhs_latex} &= {step.latex()}")
+        return "\\begin{aligned}\n" + " \\\\\n".join(lines) + "\n\\end{aligned}"
+
+    def to_latex(self) -> str:
+        """A LaTeX fragment for a paper: the shape table and the derivation."""
+        rows = "\n".join(
+            rf"${symbol_latex(r['symbol'])}$ & ${_latex_shape(r['shape'])}$ & "
+            rf"{r['structure'] or '--'} & {r['role']} \\"
+            for r in self.shape_table()
+        )
+        table = (
+            "\\begin{tabular}{llll}\n\\hline\nsymbol & shape & structure & role \\\\\n\\hline\n"
+            + rows
+            + "\n\\hline\n\\end{tabular}"
+        )
+        return f"{table}\n\n\\[\n{self.latex()}\n\\]\n"
+
+    def to_notebook(self, path) -> None:
+        """A standalone notebook with the block, the derivation, the code and a check cell."""
+        from .notebook.export import write_notebook  # the face is imported only when asked
+
+        write_notebook(self, path)
+
+    # --- numbers -------------------------------------------------------------------------------
+
+    def sample_inputs(self, sizes: dict | None = None, seed: int = 0) -> dict:
+        """Random arrays for every declared symbol, honoring shape and structure."""
+        all_sizes = default_sizes(self.block.dims)
+        all_sizes.update(sizes or {})
+        missing = [d for d in self.block.dims if d not in all_sizes]
+        if missing:  # pragma: no cover - default_sizes covers every dim
+            raise FormulaError(f"no size for dims {', '.join(missing)}")
+        return sample_inputs(
+            self.block.declarations, all_sizes, seed, positive=needs_positive(self.expr)
+        )
+
+    @functools.cached_property
+    def supports_complex_step(self) -> bool:
+        for node in E.walk(self.expr):
+            t = type(node)
+            if t in (E.LogDet, E.Norm) or (t is E.Func and node.name == "softplus"):
+                return False
+            if t in (E.Solve, E.Inverse) and E.is_spd(node.args[0]):
+                return False
+        return True
+
+    def _cost(self) -> C.CostModel:
+        return C.CostModel(C.guess_sizes(self.expr, self.size_hints))
+
+    def _specs(self) -> list:
+        tgt_shape = self.expr.shape
+        cost = self._cost()
+        gen = C.CodeGen(
+            self.block.declarations, self.arguments(), cost, use_cholesky=True
+        )
+        value = C.lower(self.expr, cost)
+        specs = [
+            C.FunctionSpec(
+                "value",
+                f"The value of {self.target}.",
+                [C.Output("value", value, tgt_shape, "the value")],
+                _ret("value", tgt_shape),
+            )
+        ]
+        if self.is_scalar:
+            for v in self.variables:
+                gl = C.lower(self._gradient(v), cost)
+                specs.append(
+                    C.FunctionSpec(
+                        f"gradient_{v}",
+                        f"The gradient of {self.target} with respect to {v} (shaped like {v}).",
+                        [C.Output(f"grad_{v}", gl, self._vars[v].shape, f"the gradient of {v}")],
+                        f"grad_{v}",
+                    )
+                )
+            # the value's subexpressions are computed anyway: free for the gradients here
+            free = frozenset(E.walk(value))
+            both = [C.Output("value", value, tgt_shape, "the value")]
+            for v in self.variables:
+                gl = C.lower(self._gradient(v), cost, free)
+                both.append(C.Output(f"grad_{v}", gl, self._vars[v].shape, f"the gradient of {v}"))
+            rets = ", ".join(f"grad_{v}" for v in self.variables)
+            if len(self.variables) > 1:
+                rets = f"({rets})"
+            specs.append(
+                C.FunctionSpec(
+                    "value_and_gradient",
+                    f"The value of {self.target} and its gradient"
+                    + (" (a tuple, in the order of the variables)." if len(self.variables) > 1 else "."),
+                    both,
+                    f"{_ret('value', tgt_shape)}, {rets}",
+                )
+            )
+        for v in self.variables:
+            sym = self._vars[v]
+            lin = C.lower(self._differential((v,)), cost)
+            specs.append(
+                C.FunctionSpec(
+                    f"jvp_{v}",
+                    f"d{self.target} along the direction d{v} (shaped like {self.target}).",
+                    [C.Output("jvp", lin, tgt_shape, "the directional derivative")],
+                    _ret("jvp", tgt_shape),
+                    direction=("_direction", v, sym.shape),
+                )
+            )
+            vjp = self._raw_gradient(v, True)
+            vjp = C.lower(_project(vjp, sym), cost)
+            specs.append(
+                C.FunctionSpec(
+                    f"vjp_{v}",
+                    f"The vector-Jacobian product with a cotangent shaped like {self.target} "
+                    f"(result shaped like {v}).",
+                    [C.Output("vjp", vjp, sym.shape, "the vector-Jacobian product")],
+                    "vjp",
+                    direction=("_cotangent", "_cotangent", tgt_shape),
+                )
+            )
+            n_in = _size_code(sym.shape)
+            n_out = _size_code(tgt_shape)
+            call_args = ", ".join(f"{a}={a}" for a in gen.required)
+            reshape_in = _reshape_code(sym.shape)
+            specs.append(
+                C.FunctionSpec(
+                    f"jacobian_{v}",
+                    f"The dense Jacobian d vec({self.target}) / d vec({v})^T (column-major vec); "
+                    "for small sizes.",
+                    [],
+                    "jac",
+                    loop=(
+                        f"    n_in, n_out = {n_in}, {n_out}\n"
+                        "    jac = np.empty((n_out, n_in), dtype=np.result_type(float, "
+                        + (gen.required[0] if gen.required else "0.0")
+                        + "))\n"
+                        "    for k in range(n_in):\n"
+                        "        e = np.zeros(n_in)\n"
+                        "        e[k] = 1.0\n"
+                        f"        col = jvp_{v}({reshape_in}, {call_args})\n"
+                        '        jac[:, k] = np.reshape(col, -1, order="F")'
+                    ),
+                )
+            )
+            if self.is_scalar:
+                try:
+                    hv = C.lower(self._hvp_expr(v), cost)
+                except NotSupportedError:
+                    continue
+                specs.append(
+                    C.FunctionSpec(
+                        f"hvp_{v}",
+                        f"The Hessian of {self.target} with respect to {v} applied to a "
+                        f"direction shaped like {v}.",
+                        [C.Output("hvp", hv, sym.shape, "the Hessian-vector product")],
+                        "hvp",
+                        direction=("_direction", v, sym.shape),
+                    )
+                )
+                specs.append(
+                    C.FunctionSpec(
+                        f"hessian_{v}",
+                        f"The dense Hessian of {self.target} over column-major vec({v}).",
+                        [],
+                        "hess",
+                        loop=(
+                            f"    n_in = {n_in}\n"
+                            "    hess = np.empty((n_in, n_in))\n"
+                            "    for k in range(n_in):\n"
+                            "        e = np.zeros(n_in)\n"
+                            "        e[k] = 1.0\n"
+                            f"        col = hvp_{v}({reshape_in}, {call_args})\n"
+                            '        hess[:, k] = np.reshape(col, -1, order="F")'
+                        ),
+                    )
+                )
+        return gen, specs
+
+    def source(self) -> str:
+        """The generated Python module (NumPy; SciPy only for spd Cholesky factors)."""
+        if self._source is None:
+            gen, specs = self._specs()
+            funcs = [gen.function(s) for s in specs]
+            header = '"""NumPy code generated by gradwright from the block:\n\n' + "\n".join(
+                "    " + line for line in self.text_block.strip("\n").split("\n")
+            ).replace('"""', "'''") + (
+                f"\n\nVariables: {', '.join(self.variables)}. Arrays are passed by keyword.\n"
+                '"""'
+            )
+            self._source = C.module(header, funcs, gen.helpers, gen.uses_scipy)
+        return self._source
+
+    def _namespace(self) -> dict:
+        if self._functions is None:
+            ns: dict = {"__name__": f"gradwright_generated_{self.target}"}
+            # our own printer wrote this text from the tree; no user text is executed
+            exec(compile(self.source(), f"<gradwright {self.target}>", "exec"), ns)  # noqa: S102
+            self._functions = ns
+        return self._functions
+
+    def _fn(self, name: str):
+        ns = self._namespace()
+        if name not in ns:
+            raise NotSupportedError(f"not supported yet: {name.replace('_', ' ')} for this target")
+        return ns[name]
+
+    def function(self):
+        """f(**arrays) -> the value of the target."""
+        return self._fn("value")
+
+    def gradient_function(self, *vars_: str):
+        """g(**arrays) -> the gradient (a tuple in wrt order for several variables)."""
+        if not self.is_scalar:
+            self.gradient(vars_[0] if vars_ else None)  # raises the explanatory error
+        if len(vars_) == 1 and isinstance(vars_[0], (list, tuple)):
+            vars_ = tuple(vars_[0])
+        if not vars_:
+            vars_ = self.variables
+        names = [self._check_var(v) for v in vars_]
+        if len(names) == 1:
+            return self._fn(f"gradient_{names[0]}")
+        fns = [self._fn(f"gradient_{v}") for v in names]
+        if tuple(names) == self.variables:
+            both = self._fn("value_and_gradient")
+
+            def gradients(**arrays):
+                return both(**arrays)[1]
+
+        else:
+
+            def gradients(**arrays):
+                return tuple(f(**arrays) for f in fns)
+
+        gradients.__doc__ = f"The gradients of {self.target} with respect to {', '.join(names)}."
+        gradients.__name__ = "gradients"
+        return gradients
+
+    def value_and_gradient_function(self):
+        """vg(**arrays) -> (value, gradient or tuple of gradients), sharing subexpressions."""
+        if not self.is_scalar:
+            self.gradient(None)
+        return self._fn("value_and_gradient")
+
+    def jvp_function(self, var: str | None = None):
+        return self._fn(f"jvp_{self._check_var(var)}")
+
+    def vjp_function(self, var: str | None = None):
+        return self._fn(f"vjp_{self._check_var(var)}")
+
+    def jacobian_function(self, var: str | None = None):
+        return self._fn(f"jacobian_{self._check_var(var)}")
+
+    def hvp_function(self, var: str | None = None):
+        v = self._check_var(var)
+        if not self.is_scalar:
+            self.gradient(v)
+        return self._fn(f"hvp_{v}")
+
+    def hessian_function(self, var: str | None = None):
+        v = self._check_var(var)
+        if not self.is_scalar:
+            self.gradient(v)
+        return self._fn(f"hessian_{v}")
+
+    def stationary_point(self, var: str | None = None):
+        """The closed-form solution of 'gradient = 0' where one exists."""
+        from .calculus.stationary import stationary_point
+
+        v = self._check_var(var)
+        return stationary_point(self, v)
+
+
+# ---------------------------------------------------------------------------------------------
+
+
+def _words(sym: E.Symbol) -> tuple:
+    implied = set()
+    if "spd" in sym.structure:
+        implied |= {"symmetric", "invertible", "square"}
+    if "orthogonal" in sym.structure:
+        implied |= {"invertible", "square"}
+    order = ("symmetric", "spd", "diagonal", "positive", "orthogonal", "square", "invertible")
+    return tuple(w for w in order if w in sym.structure and w not in implied)
+
+
+def _shape_text(shape: tuple) -> str:
+    if not shape:
+        return "()"
+    if len(shape) == 1:
+        return f"({shape[0]},)"
+    return f"({shape[0]}, {shape[1]})"
+
+
+def _latex_shape(shape_text: str) -> str:
+    return shape_text.replace("*", r" \cdot ")
+
+
+def _name_latex(name: str) -> str:
+    return symbol_latex(name)
+
+
+def _latex_text(words: str) -> str:
+    out = words.replace("\\", "")
+    for a, b in (("ᵀ", "^T"), ("⊗", " kron "), ("_", r"\_"), ("&", r"\&"), ("%", r"\%")):
+        out = out.replace(a, b)
+    return out
+
+
+def _plain_lhs(step: Step, target: str) -> str:
+    if step.kind == "gradient":
+        return f"∂{target}/∂{step.var}"
+    if step.kind == "jacobian":
+        return f"∂vec({target})/∂vec({step.var})ᵀ"
+    if step.lhs_latex.startswith(r"\operatorname{vec}"):
+        return f"vec(d{target})"
+    return f"d{target}"
+
+
+def _project(g: E.Expr, sym: E.Symbol) -> E.Expr:
+    """The gradient in the space the variable lives in (symmetric or diagonal matrices)."""
+    if not E.is_matrix_shape(sym.shape):
+        return g
+    if "diagonal" in sym.structure:
+        return simplify(E.diagm(E.diag(g)))
+    if sym.structure & E.SYMMETRIC_WORDS:
+        return simplify(E.sym_part(g))
+    return g
+
+
+def _pairing(g: E.Expr, sym: E.Symbol) -> E.Expr:
+    """<G, dX>: tr(Gᵀ dX) for matrices, gᵀ dx for vectors, g dx for scalars."""
+    dx = E.Differential(sym)
+    if sym.is_scalar:
+        return E.mul(g, dx)
+    if E.is_col(sym.shape):
+        return E.matmul(E.transpose(g), dx)
+    return E.trace(E.matmul(E.transpose(g), dx))
+
+
+def _cotangent(shape) -> E.Expr:
+    return E.Differential(E.Symbol("_cotangent", shape, frozenset()))
+
+
+def _ret(name: str, shape) -> str:
+    return f"np.asarray({name})[()]" if E.is_scalar_shape(shape) else name
+
+
+def _size_code(shape) -> str:
+    dims = [d for d in shape if d is not None]
+    if not dims:
+        return "1"
+    parts = []
+    for d in dims:
+        parts.extend(f'_dims["{n}"]' for n in d.names)
+        if d.coef != 1 or not d.names:
+            parts.append(str(d.coef))
+    return " * ".join(parts)
+
+
+def _reshape_code(shape) -> str:
+    r, c = shape
+    if r is None and c is None:
+        return "e[0]"
+    if r is None or c is None:
+        return "e"
+    return "e.reshape(({}, {}), order=\"F\")".format(
+        _size_code((r, None)), _size_code((c, None))
+    )

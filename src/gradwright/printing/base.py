@@ -1,0 +1,78 @@
+"""Printer base: dispatch to `_print_<Class>` along the class hierarchy, declared settings.
+
+Parentheses come from a precedence table (`precedence.py`), never from the callers.
+"""
+
+from __future__ import annotations
+
+from fractions import Fraction
+
+from .. import expr as E
+
+
+class Printer:
+    """Subclasses declare `default_settings`; unknown setting keys are refused."""
+
+    default_settings: dict = {}
+
+    def __init__(self, settings: dict | None = None):
+        settings = dict(settings or {})
+        unknown = set(settings) - set(self.default_settings)
+        if unknown:
+            raise TypeError(f"unknown printer settings: {', '.join(sorted(unknown))}")
+        self.settings = {**self.default_settings, **settings}
+
+    def doprint(self, e: E.Expr) -> str:
+        return self._print(e)
+
+    def _print(self, e: E.Expr) -> str:
+        for cls in type(e).__mro__:
+            method = getattr(self, f"_print_{cls.__name__}", None)
+            if method is not None:
+                return method(e)
+        raise NotImplementedError(f"{type(self).__name__} cannot print {type(e).__name__}")
+
+
+def chain_segments(factors) -> list[list]:
+    """Split a product chain where the inner axis is the unit axis (an outer product)."""
+    segments = [[factors[0]]]
+    for a, b in zip(factors, factors[1:]):
+        if a.shape[1] is None and b.shape[0] is None:
+            segments.append([b])
+        else:
+            segments[-1].append(b)
+    return segments
+
+
+def segment_shape(seg) -> tuple:
+    return (seg[0].shape[0], seg[-1].shape[1])
+
+
+def split_numerator(e: E.Mul):
+    """(coefficient, numerator factors, denominator factors) of a product."""
+    coef = Fraction(1)
+    num, den = [], []
+    for f in e.args:
+        if type(f) is E.Const:
+            coef *= f.value
+        elif type(f) is E.Power and type(f.args[1]) is E.Const and f.args[1].value < 0:
+            k = -f.args[1].value
+            den.append(f.args[0] if k == 1 else E.Power(f.args[0], E.Const(k)))
+        else:
+            num.append(f)
+    return coef, num, den
+
+
+def fraction_text(v: Fraction) -> str | None:
+    """An exact short decimal for v when there is one, else None."""
+    if v.denominator == 1:
+        return str(v.numerator)
+    d = v.denominator
+    while d % 2 == 0:
+        d //= 2
+    while d % 5 == 0:
+        d //= 5
+    if d != 1:
+        return None
+    text = f"{float(v):.12g}"
+    return text if Fraction(text) == v else None

@@ -1,0 +1,260 @@
+"""LaTeX in the trade's notation: transpose, inverse, tr, det, Kronecker, Hadamard, vec."""
+
+from __future__ import annotations
+
+import re
+
+from .. import expr as E
+from . import precedence as P
+from .base import Printer, fraction_text, split_numerator
+
+GREEK = {
+    "alpha", "beta", "gamma", "delta", "epsilon", "zeta", "eta", "theta", "iota", "kappa",
+    "lambda", "mu", "nu", "xi", "pi", "rho", "sigma", "tau", "upsilon", "phi", "chi", "psi",
+    "omega", "Gamma", "Delta", "Theta", "Lambda", "Xi", "Pi", "Sigma", "Upsilon", "Phi", "Psi",
+    "Omega",
+}  # fmt: skip
+_GREEK_ALIASES = {"lam": "lambda", "lmbda": "lambda", "eps": "epsilon"}
+
+FUNC_LATEX = {
+    "exp": r"\exp",
+    "log": r"\log",
+    "sin": r"\sin",
+    "cos": r"\cos",
+    "tanh": r"\tanh",
+    "sigmoid": r"\sigma",
+    "softplus": r"\operatorname{softplus}",
+}
+
+
+def symbol_latex(name: str) -> str:
+    """`mu` -> \\mu, `W1` -> W_{1}, `x_hat` -> x_{\\mathrm{hat}}, `loss` -> \\mathrm{loss}."""
+    m = re.fullmatch(r"([A-Za-z]+?)_?(\d+)", name)
+    if m:
+        return f"{symbol_latex(m.group(1))}_{{{m.group(2)}}}"
+    if "_" in name:
+        head, tail = name.split("_", 1)
+        if head:
+            inner = tail if len(tail) == 1 else rf"\mathrm{{{tail}}}"
+            if tail in GREEK:
+                inner = "\\" + tail
+            return f"{symbol_latex(head)}_{{{inner}}}"
+    base = _GREEK_ALIASES.get(name, name)
+    if base in GREEK:
+        return "\\" + base
+    if len(name) == 1:
+        return name
+    return rf"\mathrm{{{name}}}"
+
+
+def dim_latex(d) -> str:
+    return r" \cdot ".join(str(d).split("*"))
+
+
+class LatexPrinter(Printer):
+    default_settings = {
+        "dim_subscripts": False,  # I_n, 1_n rather than I, 1
+    }
+
+    def paren(self, e: E.Expr, level: int) -> str:
+        text = self._print(e)
+        if P.latex_precedence(e) < level:
+            return rf"\left({text}\right)"
+        return text
+
+    def call(self, name: str, e: E.Expr) -> str:
+        inner = self._print(e)
+        if P.latex_precedence(e) >= P.ATOM and type(e) in (E.Symbol, E.Named, E.Differential):
+            return rf"{name}({inner})"
+        return rf"{name}\left({inner}\right)"
+
+    # --- leaves ------------------------------------------------------------------------------
+
+    def _print_Symbol(self, e):
+        return symbol_latex(e.name)
+
+    def _print_Named(self, e):
+        return symbol_latex(e.name)
+
+    def _print_Differential(self, e):
+        return r"\mathrm{d}" + symbol_latex(e.symbol.name)
+
+    def _print_D(self, e):
+        inner = e.args[0]
+        if type(inner) in (E.Symbol, E.Named):
+            return r"\mathrm{d}" + self._print(inner)
+        return r"\mathrm{d}\left(" + self._print(inner) + r"\right)"
+
+    def _print_Const(self, e):
+        v = e.value
+        if v < 0:
+            return "-" + self._print(E.Const(-v))
+        text = fraction_text(v)
+        if text is not None and (v.denominator == 1 or len(text) <= 6):
+            return text
+        return rf"\frac{{{v.numerator}}}{{{v.denominator}}}"
+
+    def _print_Identity(self, e):
+        return f"I_{{{dim_latex(e.args[0])}}}" if self.settings["dim_subscripts"] else "I"
+
+    def _print_Ones(self, e):
+        r, c = e.shape
+        if not self.settings["dim_subscripts"]:
+            return r"\mathbf{1}" if c is None or r is None else r"\mathbf{1}\mathbf{1}^{\top}"
+        dims = [dim_latex(d) for d in (r, c) if d is not None]
+        return r"\mathbf{1}_{" + r" \times ".join(dims) + "}"
+
+    def _print_Zero(self, e):
+        return r"\mathbf{0}"
+
+    def _print_Commutation(self, e):
+        return f"K_{{{dim_latex(e.args[0])},{dim_latex(e.args[1])}}}"
+
+    # --- sums and products ---------------------------------------------------------------------
+
+    def _print_Add(self, e):
+        out = ""
+        for i, t in enumerate(e.args):
+            text = self._print(t)
+            if P.latex_precedence(t) < P.ADD:
+                text = rf"\left({text}\right)"
+            if i == 0:
+                out = text
+            elif text.startswith("-"):
+                out += " - " + text[1:]
+            else:
+                out += " + " + text
+        return out
+
+    def _print_Mul(self, e):
+        coef, num, den = split_numerator(e)
+        if coef < 0:
+            rest = E.mul(E.Const(-coef), *num, *(E.power(d, E.Const(-1)) for d in den))
+            inner = self._print(rest)
+            if P.latex_precedence(rest) <= P.ADD:
+                inner = rf"\left({inner}\right)"
+            return "-" + inner
+        scalars_den = [d for d in den if d.is_scalar]
+        arrays_den = [d for d in den if not d.is_scalar]
+        parts = []
+        if coef != 1 and (num or scalars_den):
+            ct = self._print(E.Const(coef))
+            parts.append(ct)
+        scal = [f for f in num if f.is_scalar]
+        arrs = [f for f in num if not f.is_scalar]
+        for f in scal:
+            parts.append(self.paren(f, P.PRODUCT + 1 if type(f) is not E.MatMul else P.PRODUCT))
+        if arrs or arrays_den:
+            level = P.PRODUCT + 1 if len(arrs) + len(arrays_den) > 1 else P.PRODUCT
+            had = [self.paren(f, level) for f in arrs]
+            for d in arrays_den:
+                had.append(self.paren(d, P.POSTFIX + 1) + r"^{\circ -1}")
+            joined = r" \odot ".join(had)
+            parts.append(joined)
+        body = " ".join(parts) if parts else self._print(E.Const(coef))
+        if coef != 1 and not (num or scalars_den):
+            body = self._print(E.Const(coef)) + " " + body
+        if scalars_den:
+            den_text = " ".join(self.paren(d, P.PRODUCT + 1) for d in scalars_den)
+            if not arrs and not arrays_den:
+                top = " ".join(parts) if parts else "1"
+                if coef != 1 and top == self._print(E.Const(coef)):
+                    pass
+                return rf"\frac{{{top}}}{{{den_text}}}"
+            return rf"\frac{{1}}{{{den_text}}} {body}"
+        return body
+
+    def _print_MatMul(self, e):
+        return " ".join(self.paren(f, P.PRODUCT + 1) for f in e.args)
+
+    def _print_Kron(self, e):
+        return rf"{self.paren(e.args[0], P.KRON + 1)} \otimes {self.paren(e.args[1], P.KRON + 1)}"
+
+    def _print_Solve(self, e):
+        return f"{self.paren(e.args[0], P.POSTFIX + 1)}^{{-1}} {self.paren(e.args[1], P.PRODUCT)}"
+
+    # --- postfix -----------------------------------------------------------------------------
+
+    def _print_Transpose(self, e):
+        a = e.args[0]
+        if type(a) is E.Inverse:
+            return self.paren(a.args[0], P.POSTFIX + 1) + r"^{-\top}"
+        return self.paren(a, P.POSTFIX + 1) + r"^{\top}"
+
+    def _print_Inverse(self, e):
+        return self.paren(e.args[0], P.POSTFIX + 1) + "^{-1}"
+
+    def _print_Power(self, e):
+        a, k = e.args
+        if type(k) is E.Const and k.value == E.Fraction(1, 2):
+            return rf"\sqrt{{{self._print(a)}}}"
+        if type(k) is E.Const and k.value < 0 and a.is_scalar:
+            return rf"\frac{{1}}{{{self._print(E.power(a, E.Const(-k.value)))}}}"
+        base = self.paren(a, P.POSTFIX + 1)
+        exp = self._print(k)
+        return f"{base}^{{{exp}}}" if a.is_scalar else rf"{base}^{{\circ {exp}}}"
+
+    def _print_MatPow(self, e):
+        return f"{self.paren(e.args[0], P.POSTFIX + 1)}^{{{e.args[1]}}}"
+
+    # --- functions -----------------------------------------------------------------------------
+
+    def _print_Func(self, e):
+        if e.name == "sqrt":
+            return rf"\sqrt{{{self._print(e.arg)}}}"
+        return self.call(FUNC_LATEX[e.name], e.arg)
+
+    def _print_Trace(self, e):
+        return self.call(r"\operatorname{tr}", e.args[0])
+
+    def _print_Det(self, e):
+        return self.call(r"\det", e.args[0])
+
+    def _print_LogDet(self, e):
+        a = e.args[0]
+        if E.is_spd(a):
+            return self.call(r"\log\det", a)
+        return r"\log\left|\det " + self.paren(a, P.ATOM) + r"\right|"
+
+    def _print_Vec(self, e):
+        return self.call(r"\operatorname{vec}", e.args[0])
+
+    def _print_Unvec(self, e):
+        return self.call(r"\operatorname{vec}^{-1}", e.args[0])
+
+    def _print_Diag(self, e):
+        return self.call(r"\operatorname{diag}", e.args[0])
+
+    def _print_Diagm(self, e):
+        return self.call(r"\operatorname{Diag}", e.args[0])
+
+    def _print_Sum(self, e):
+        return self.call(r"\operatorname{sum}", e.args[0])
+
+    def _print_Norm(self, e):
+        a = e.args[0]
+        sub = "_F" if E.is_matrix_shape(a.shape) else ""
+        return rf"\left\lVert {self._print(a)} \right\rVert{sub}"
+
+    def _print_LogSumExp(self, e):
+        return self.call(r"\operatorname{logsumexp}", e.args[0])
+
+    def _print_Softmax(self, e):
+        return self.call(r"\operatorname{softmax}", e.args[0])
+
+    def _print_KronContract(self, e):
+        g, other, _r, _c, side = e.args
+        dot = rf"\cdot \otimes {self.paren(other, P.KRON + 1)}"
+        if side == "right":
+            dot = rf"{self.paren(other, P.KRON + 1)} \otimes \cdot"
+        return rf"\left\langle {self._print(g)},\, {dot} \right\rangle"
+
+
+def latex(e: E.Expr, **settings) -> str:
+    """LaTeX of an expression.
+
+    >>> from gradwright.language import parse_block
+    >>> latex(parse_block("X: (n, p)\\nW: (p, k)\\nf = X.T @ X @ W").expr)
+    'X^{\\\\top} X W'
+    """
+    return LatexPrinter(settings).doprint(e)

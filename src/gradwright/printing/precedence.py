@@ -1,0 +1,65 @@
+"""Precedence tables for the printers (higher binds tighter)."""
+
+from __future__ import annotations
+
+from .. import expr as E
+
+ADD = 10
+HADAMARD = 15
+KRON = 17
+PRODUCT = 20
+UNARY = 25
+POSTFIX = 40
+ATOM = 50
+
+
+def _leading_negative(e: E.Expr) -> bool:
+    if type(e) is E.Const:
+        return e.value < 0
+    if type(e) is E.Mul and type(e.args[0]) is E.Const:
+        return e.args[0].value < 0
+    return False
+
+
+def latex_precedence(e: E.Expr) -> int:
+    t = type(e)
+    if t is E.Add:
+        return ADD
+    if _leading_negative(e):
+        return ADD
+    if t is E.Mul:
+        arrays = [f for f in e.args if not f.is_scalar]
+        den = any(
+            type(f) is E.Power and type(f.args[1]) is E.Const and f.args[1].value < 0
+            for f in e.args
+        )
+        if len(arrays) > 1:
+            return HADAMARD
+        if den and not e.is_scalar:
+            return HADAMARD
+        return PRODUCT
+    if t is E.Kron:
+        return KRON
+    if t in (E.MatMul, E.Solve):
+        return PRODUCT
+    if t is E.Const and e.value.denominator != 1:
+        return PRODUCT
+    if t in (E.Transpose, E.Inverse, E.Power, E.MatPow):
+        return POSTFIX
+    return ATOM
+
+
+def text_precedence(e: E.Expr) -> int:
+    """Python's own precedence: + - < * / @ < unary - < ** < calls and attributes."""
+    t = type(e)
+    if t is E.Add:
+        return ADD
+    if _leading_negative(e):
+        return UNARY if t is E.Const or len(e.args) == 2 else PRODUCT
+    if t in (E.Mul, E.MatMul):
+        return PRODUCT
+    if t is E.Const and e.value.denominator != 1:
+        return PRODUCT
+    if t is E.Power:
+        return POSTFIX - 5
+    return ATOM

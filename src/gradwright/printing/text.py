@@ -1,0 +1,195 @@
+"""Formula-language text of an expression (NumPy syntax): `parse(text(e)) == e`."""
+
+from __future__ import annotations
+
+from .. import expr as E
+from . import precedence as P
+from .base import Printer, chain_segments, fraction_text, segment_shape, split_numerator
+
+
+class TextPrinter(Printer):
+    """Prints in the formula language; subclasses change the function spellings."""
+
+    default_settings: dict = {}
+    names = {
+        "trace": "trace", "det": "det", "logdet": "logdet", "inv": "inv", "solve": "solve",
+        "kron": "kron", "vec": "vec", "diag": "diag", "diagm": "diagm", "sum": "sum",
+        "norm": "norm", "logsumexp": "logsumexp", "softmax": "softmax", "outer": "outer",
+        "eye": "eye", "ones": "ones", "zeros": "zeros", "mpow": "mpow",
+        "commutation": "commutation",
+    }  # fmt: skip
+
+    def paren(self, e: E.Expr, level: int) -> str:
+        text = self._print(e)
+        return f"({text})" if P.text_precedence(e) < level else text
+
+    def fn(self, name: str, *args: str) -> str:
+        return f"{self.names[name]}({', '.join(args)})"
+
+    def _print_Symbol(self, e):
+        return e.name
+
+    def _print_Named(self, e):
+        return e.name
+
+    def _print_Differential(self, e):
+        return f"d({e.symbol.name})"
+
+    def _print_D(self, e):
+        return f"d({self._print(e.args[0])})"
+
+    def _print_Const(self, e):
+        v = e.value
+        text = fraction_text(v)
+        if text is not None:
+            return text
+        return f"{v.numerator}/{v.denominator}"
+
+    def dims(self, shape) -> list[str]:
+        return [self.dim(d) for d in shape if d is not None]
+
+    def dim(self, d) -> str:
+        return str(d)
+
+    def _print_Identity(self, e):
+        return self.fn("eye", self.dim(e.args[0]))
+
+    def _print_Ones(self, e):
+        return self.fn("ones", *self.dims(e.shape))
+
+    def _print_Zero(self, e):
+        return self.fn("zeros", *self.dims(e.shape))
+
+    def _print_Commutation(self, e):
+        return self.fn("commutation", self.dim(e.args[0]), self.dim(e.args[1]))
+
+    def _print_Add(self, e):
+        out = ""
+        for i, t in enumerate(e.args):
+            text = self.paren(t, P.ADD)
+            if i == 0:
+                out = text
+            elif text.startswith("-"):
+                out += " - " + text[1:]
+            else:
+                out += " + " + text
+        return out
+
+    def _print_Mul(self, e):
+        coef, num, den = split_numerator(e)
+        if coef < 0:
+            rest = E.mul(E.Const(-coef), *num, *(E.power(d, E.Const(-1)) for d in den))
+            return "-" + self.paren(rest, P.PRODUCT)
+        parts = []
+        if coef != 1 or not num:
+            if coef.denominator != 1 and fraction_text(coef) is None:
+                parts.append(f"({coef.numerator}/{coef.denominator})")
+            else:
+                parts.append(self._print(E.Const(coef)))
+        for f in num:
+            parts.append(self.paren(f, P.PRODUCT + 1 if type(f) is not E.Power else P.PRODUCT))
+        text = " * ".join(parts)
+        for d in den:
+            text += " / " + self.paren(d, P.PRODUCT + 1)
+        return text
+
+    def _print_MatMul(self, e):
+        segments = chain_segments(e.args)
+        scalars, vectors = [], []
+        for seg in segments:
+            s = self.segment(seg)
+            if E.is_scalar_shape(segment_shape(seg)):
+                scalars.append(s if len(seg) == 1 or len(segments) == 1 else f"({s})")
+            else:
+                vectors.append((s, seg))
+        if len(vectors) == 2:
+            core = self.fn("outer", vectors[0][0], vectors[1][0])
+        elif len(vectors) == 1:
+            core = vectors[0][0]
+            if scalars and len(vectors[0][1]) > 1:
+                core = f"({core})"
+        else:
+            core = ""
+        parts = scalars + ([core] if core else [])
+        return " * ".join(parts)
+
+    def segment(self, seg) -> str:
+        texts = []
+        for f in seg:
+            if type(f) is E.Transpose and E.is_vector_shape(f.shape):
+                f = f.args[0]
+            texts.append(self.paren(f, P.PRODUCT + 1))
+        return " @ ".join(texts)
+
+    def _print_Transpose(self, e):
+        a = e.args[0]
+        if not E.is_matrix_shape(a.shape):
+            return self._print(a)
+        return self.paren(a, P.ATOM) + ".T"
+
+    def _print_Power(self, e):
+        a, k = e.args
+        return f"{self.paren(a, P.ATOM)}**{self.paren(k, P.ATOM)}"
+
+    def _print_Func(self, e):
+        return f"{e.name}({self._print(e.arg)})"
+
+    def _print_Trace(self, e):
+        return self.fn("trace", self._print(e.args[0]))
+
+    def _print_Det(self, e):
+        return self.fn("det", self._print(e.args[0]))
+
+    def _print_LogDet(self, e):
+        return self.fn("logdet", self._print(e.args[0]))
+
+    def _print_Inverse(self, e):
+        return self.fn("inv", self._print(e.args[0]))
+
+    def _print_Solve(self, e):
+        return self.fn("solve", self._print(e.args[0]), self._print(e.args[1]))
+
+    def _print_Kron(self, e):
+        return self.fn("kron", self._print(e.args[0]), self._print(e.args[1]))
+
+    def _print_Vec(self, e):
+        return self.fn("vec", self._print(e.args[0]))
+
+    def _print_Unvec(self, e):
+        g, r, c = e.args
+        return f"unvec({self._print(g)}, {r}, {c})"
+
+    def _print_Diag(self, e):
+        return self.fn("diag", self._print(e.args[0]))
+
+    def _print_Diagm(self, e):
+        return self.fn("diagm", self._print(e.args[0]))
+
+    def _print_Sum(self, e):
+        return self.fn("sum", self._print(e.args[0]))
+
+    def _print_Norm(self, e):
+        return self.fn("norm", self._print(e.args[0]))
+
+    def _print_LogSumExp(self, e):
+        return self.fn("logsumexp", self._print(e.args[0]))
+
+    def _print_Softmax(self, e):
+        return self.fn("softmax", self._print(e.args[0]))
+
+    def _print_MatPow(self, e):
+        return self.fn("mpow", self._print(e.args[0]), str(e.args[1]))
+
+    def _print_KronContract(self, e):
+        g, other, r, c, side = e.args
+        return f"kron_contract_{side}({self._print(g)}, {self._print(other)})"
+
+
+def text(e: E.Expr) -> str:
+    """Formula-language text of an expression.
+
+    >>> from gradwright.language import parse_block
+    >>> text(parse_block("x: (n,)\\nA: (n, n)\\nf = x @ A @ x").expr)
+    'x @ A @ x'
+    """
+    return TextPrinter().doprint(e)
