@@ -36,7 +36,9 @@ def plans(record):
 
 
 def structure(record):
-    return {parse_declaration(line)[0]: parse_declaration(line)[2] for line in record["declarations"]}
+    return {
+        parse_declaration(line)[0]: parse_declaration(line)[2] for line in record["declarations"]
+    }
 
 
 def central_difference(text, arrays, sizes, directions, h=1e-5):
@@ -73,7 +75,7 @@ def test_identity_holds_numerically(record):
         else:
             wrt = record["wrt"]
 
-            def f(x, arrays=arrays, sizes=sizes):
+            def f(x, arrays=arrays, sizes=sizes, wrt=wrt):
                 return evaluate(record["lhs"], {**arrays, wrt: x}, sizes)
 
             assert np.ndim(f(arrays[wrt])) == 0, f"{where}: a derivative record needs a scalar lhs"

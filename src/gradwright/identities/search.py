@@ -391,6 +391,8 @@ def search_with_scores(text: str, *, tags=None, limit: int = 10) -> list[tuple[I
     index = _index()
     allowed = _tag_filter(index.identities, tags)
     if not text.strip():
+        if tags is None:
+            return []
         return [(index.identities[i], 0.0) for i in allowed[:limit]]
     scores = index.score(text)
     allowed_set = set(allowed)
