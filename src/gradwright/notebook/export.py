@@ -55,6 +55,17 @@ def source_roles(derivation, source: str) -> dict:
     import numpy as np
 
     functions = _functions_in(source)
+    # The generated module's own names (value, gradient_X, jvp_X), when it has them.
+    named = {
+        "value": "value",
+        "gradient": {v: f"gradient_{v}" for v in derivation.variables},
+        "jvp": {v: f"jvp_{v}" for v in derivation.variables},
+    }
+    wanted = ["value"] + [
+        named["gradient" if derivation.is_scalar else "jvp"][v] for v in derivation.variables
+    ]
+    if all(name in functions for name in wanted):
+        return named
     namespace: dict = {}
     exec(compile(source, "<gradwright generated>", "exec"), namespace)  # our own generated code
     inputs = derivation.sample_inputs(seed=1)
