@@ -157,7 +157,7 @@ def test_demo_notebook_in_jupyterlab(tmp_path):
                 executable_path=str(CHROMIUM), headless=True, args=CHROMIUM_FLAGS
             )
             try:
-                page = browser.new_page(viewport={"width": 1280, "height": 1000})
+                page = browser.new_page(viewport={"width": 1280, "height": 1500})
                 _run_notebook_and_click(page, port, token, notebook.name)
             finally:
                 browser.close()
@@ -173,6 +173,7 @@ def _run_notebook_and_click(page, port: int, token: str, name: str) -> None:
     page.wait_for_function("() => window.jupyterapp !== undefined")
     _wait_kernel_idle(page)
 
+    page.evaluate("() => window.jupyterapp.shell.collapseLeft()")
     page.evaluate("() => window.jupyterapp.commands.execute('notebook:run-all-cells')")
     # Typeset math (MathJax 3 renders into <mjx-container>) and the check panel's widgets.
     page.wait_for_selector("mjx-container", state="attached")
@@ -202,9 +203,16 @@ def _run_notebook_and_click(page, port: int, token: str, name: str) -> None:
     assert after != before
     assert "PASS" in after, after
 
-    panel = page.locator(".gradwright-check-panel").first
-    panel.scroll_into_view_if_needed()
-    page.wait_for_timeout(500)  # let the plot images paint
+    # Frame the derivation with its panel: the %%derive cell's output at the top.
+    page.locator(".gradwright-check-panel img").first.wait_for(state="visible")
+    page.evaluate(
+        """() => {
+            const math = document.querySelector('.jp-OutputArea-output mjx-container');
+            const cell = math && math.closest('.jp-Cell');
+            if (cell) cell.scrollIntoView({block: 'start'});
+        }"""
+    )
+    page.wait_for_timeout(800)  # let the plot images and the math paint
     shot = ARTIFACTS / "jupyterlab-check-panel.png"
     page.screenshot(path=str(shot), full_page=False)
     if os.environ.get("GRADWRIGHT_UPDATE_SCREENSHOT") == "1":

@@ -355,6 +355,8 @@ class _Reader:
                 if item.value <= 0:
                     self.fail(f"dims must be positive, got {item.value}", lineno, c, 1)
                 dims.append(item.value)
+            elif isinstance(item, ast.BinOp) and isinstance(item.op, ast.Mult):
+                dims.append(self.product_dim(item, lineno, c, shape_text))
             elif isinstance(item, ast.UnaryOp) and isinstance(item.op, ast.USub):
                 self.fail("dims must be positive", lineno, c, 2)
             else:
@@ -371,6 +373,27 @@ class _Reader:
                 cls=NotSupportedError,
             )
         return dims
+
+    def product_dim(self, item, lineno, col, shape_text):
+        """`m*p` in a shape: a product of dim names and positive integers."""
+        factors = []
+        stack = [item]
+        while stack:
+            x = stack.pop()
+            if isinstance(x, ast.BinOp) and isinstance(x.op, ast.Mult):
+                stack += [x.right, x.left]
+            elif isinstance(x, ast.Name):
+                self.check_name(x.id, lineno, col, what="dim")
+                factors.append(x.id)
+            elif isinstance(x, ast.Constant) and type(x.value) is int and x.value > 0:
+                factors.append(x.value)
+            else:
+                self.fail("a product dim multiplies names and positive integers, like m*p",
+                          lineno, col, 1)
+        d = E.Dim()
+        for f in factors:
+            d = d * E.Dim.of(f)
+        return d
 
     def add_symbol(self, name, dims, words, lineno, col):
         words = set(words)
@@ -404,6 +427,9 @@ class _Reader:
         for axis, d in enumerate(dims):
             if isinstance(d, str):
                 self.block.dims.setdefault(d, []).append((name, axis))
+            elif isinstance(d, E.Dim):
+                for part in d.names:
+                    self.block.dims.setdefault(part, []).append((name, axis))
 
     def declare_from_mapping(self, shapes):
         if not isinstance(shapes, dict):

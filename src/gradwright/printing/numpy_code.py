@@ -24,7 +24,7 @@ HELPERS = {
     "_gw_check": '''
 def _gw_check(specs):
     """Validate the arguments; returns the arrays and the dims they bind."""
-    dims, owner, out = {}, {}, []
+    dims, owner, out, products = {}, {}, [], []
     for name, value, spec in specs:
         if isinstance(value, (str, bytes)) or value is None:
             raise TypeError(f"{name} must be a numeric array, got {type(value).__name__}")
@@ -45,11 +45,7 @@ def _gw_check(specs):
                 if n != d:
                     raise ValueError(f"{name} has {n} {word} but its declaration says {d}")
             elif "*" in d:
-                want = 1
-                for part in d.split("*"):
-                    want *= int(part) if part.isdigit() else dims[part]
-                if n != want:
-                    raise ValueError(f"{name} has {n} {word} but {d} = {want}")
+                products.append((name, word, d, n))
             elif d in dims:
                 if dims[d] != n:
                     other, other_word = owner[d]
@@ -60,6 +56,14 @@ def _gw_check(specs):
             else:
                 dims[d], owner[d] = n, (name, word)
         out.append(a)
+    for name, word, d, n in products:  # after every plain dim is bound
+        want = 1
+        for part in d.split("*"):
+            if not part.isdigit() and part not in dims:
+                raise ValueError(f"{name}: the size of dim {part} in {d} is not known")
+            want *= int(part) if part.isdigit() else dims[part]
+        if n != want:
+            raise ValueError(f"{name} has {n} {word} but {d} = {want}")
     return out, dims
 ''',
     "_gw_finite": '''
