@@ -157,7 +157,7 @@ def test_demo_notebook_in_jupyterlab(tmp_path):
                 executable_path=str(CHROMIUM), headless=True, args=CHROMIUM_FLAGS
             )
             try:
-                page = browser.new_page(viewport={"width": 1280, "height": 1500})
+                page = browser.new_page(viewport={"width": 1280, "height": 2400})
                 _run_notebook_and_click(page, port, token, notebook.name)
             finally:
                 browser.close()
@@ -213,8 +213,11 @@ def _run_notebook_and_click(page, port: int, token: str, name: str) -> None:
         }"""
     )
     page.wait_for_timeout(800)  # let the plot images and the math paint
+    page.screenshot(path=str(ARTIFACTS / "jupyterlab-window.png"), full_page=False)
     shot = ARTIFACTS / "jupyterlab-check-panel.png"
-    page.screenshot(path=str(shot), full_page=False)
+    page.locator(".jp-Cell", has=page.locator(".gradwright-check-panel")).first.screenshot(
+        path=str(shot)
+    )
     if os.environ.get("GRADWRIGHT_UPDATE_SCREENSHOT") == "1":
         shutil.copy(shot, ROOT / "docs" / "screenshot.png")
 

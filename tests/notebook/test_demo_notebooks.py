@@ -18,7 +18,9 @@ TIME_LIMIT = 60.0  # seconds per notebook (scenarios.md)
 def _builder():
     import importlib.util
 
-    spec = importlib.util.spec_from_file_location("build_demos", ROOT / "notebooks_demo" / "build_demos.py")
+    spec = importlib.util.spec_from_file_location(
+        "build_demos", ROOT / "notebooks_demo" / "build_demos.py"
+    )
     module = importlib.util.module_from_spec(spec)
     spec.loader.exec_module(module)
     return module
@@ -37,7 +39,9 @@ def test_demos_are_what_the_generator_writes():
 def kernel_env(monkeypatch):
     # The kernel imports this checkout's gradwright and draws no windows.
     src = str(ROOT / "src")
-    monkeypatch.setenv("PYTHONPATH", os.pathsep.join(filter(None, [src, os.environ.get("PYTHONPATH")])))
+    monkeypatch.setenv(
+        "PYTHONPATH", os.pathsep.join(filter(None, [src, os.environ.get("PYTHONPATH")]))
+    )
     monkeypatch.setenv("MPLBACKEND", "Agg")
 
 
@@ -75,6 +79,7 @@ def test_demo_runs_in_a_fresh_kernel(path, tmp_path, kernel_env):
     statuses = [
         m["state"].get("value", "")
         for m in models.values()
-        if m.get("model_name") == "HTMLModel" and "gradwright-check-status" in m["state"].get("_dom_classes", [])
+        if m.get("model_name") == "HTMLModel"
+        and "gradwright-check-status" in m["state"].get("_dom_classes", [])
     ]
     assert statuses and any("PASS" in s for s in statuses)

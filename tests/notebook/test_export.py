@@ -84,8 +84,9 @@ def test_export_executes_in_a_kernel(tmp_path):
 
     path = write_notebook(derive(DEMAND, wrt=["U", "V"]), tmp_path / "export.ipynb")
     nb = nbformat.read(path, as_version=4)
-    NotebookClient(nb, kernel_name="python3", timeout=120,
-                   resources={"metadata": {"path": str(tmp_path)}}).execute()
+    NotebookClient(
+        nb, kernel_name="python3", timeout=120, resources={"metadata": {"path": str(tmp_path)}}
+    ).execute()
     outputs = [o for c in nb.cells if c.cell_type == "code" for o in c.outputs]
     assert not [o for o in outputs if o.output_type == "error"]
     assert any("PASS" in o.get("text", "") for o in outputs)

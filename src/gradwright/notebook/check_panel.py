@@ -41,16 +41,18 @@ def sweep_figure(result: CheckResult):
     checks = [c for c in result.checks if c.sweep is not None]
     if not checks:
         return None
-    figure = Figure(figsize=(4.4, 3.1))
+    figure = Figure(figsize=(4.0, 2.9))
     axes = figure.subplots()
     styles = {"central": "-", "forward": "--", "complex step": ":"}
-    for check in checks:
+    colors = ["tab:blue", "tab:orange", "tab:green", "tab:purple", "tab:brown", "tab:olive"]
+    for k, check in enumerate(checks):
         steps, curves = check.sweep
         for method, errors in curves.items():
             shown = np.where(np.isfinite(errors), np.maximum(errors, 1e-17), np.nan)
             label = method if len(checks) == 1 else f"{check.variable}, {method}"
             width = 2.0 if method == result.method else 1.0
-            axes.loglog(steps, shown, styles.get(method, "-"), lw=width, label=label)
+            color = colors[k % len(colors)] if len(checks) > 1 else None
+            axes.loglog(steps, shown, styles.get(method, "-"), lw=width, label=label, color=color)
         axes.axvline(check.step, color="0.35", lw=0.8)
     axes.axhline(result.tolerance, color="tab:red", lw=0.8, ls=":", label="tolerance")
     axes.annotate(
@@ -66,7 +68,7 @@ def sweep_figure(result: CheckResult):
     axes.set_xlabel("step h")
     axes.set_ylabel("relative error")
     axes.set_title("error against step size", fontsize=10)
-    axes.legend(fontsize=7, frameon=False)
+    axes.legend(fontsize=6, frameon=False, loc="best")
     axes.grid(True, which="major", alpha=0.3)
     return figure
 
@@ -78,7 +80,7 @@ def heatmap_figure(check):
     errors = check.entrywise
     if errors is None or errors.ndim != 2:
         return None
-    figure = Figure(figsize=(3.6, 3.1))
+    figure = Figure(figsize=(3.1, 2.7))
     axes = figure.subplots()
     with np.errstate(divide="ignore", invalid="ignore"):
         logs = np.log10(np.maximum(errors, 1e-17))
@@ -201,7 +203,7 @@ class CheckPanel:
         self.step = w.FloatText(
             value=default_step(method),
             description="step",
-            layout=w.Layout(width="220px"),
+            layout=w.Layout(width="260px"),
             tooltip="relative step; h = step * max(1, rms of the variable)",
         )
         self.tolerance = w.FloatText(
@@ -215,6 +217,7 @@ class CheckPanel:
             description="use arrays from my namespace when they fit",
             disabled=namespace is None,
             indent=False,
+            layout=w.Layout(width="auto"),
         )
         self.button = w.Button(
             description="Run check",

@@ -40,6 +40,33 @@ def latex_text(words: str) -> str:
     return "".join(_LATEX_TEXT_ESCAPES.get(ch, ch) for ch in words)
 
 
+RULE_WIDTH = 44  # characters per line of a rule's words before it wraps
+
+
+def _wrap(words: str, width: int = RULE_WIDTH) -> list[str]:
+    lines, current = [], ""
+    for piece in words.replace("; ", ";\0").split("\0"):
+        for word in piece.split(" "):
+            candidate = f"{current} {word}".strip() if current else word
+            if len(candidate) > width and current:
+                lines.append(current)
+                current = word
+            else:
+                current = candidate
+    if current:
+        lines.append(current)
+    return lines
+
+
+def rule_latex(words: str) -> str:
+    """A rule's plain words as small grey text, wrapped onto stacked lines when long."""
+    lines = [f"\\text{{{latex_text(line)}}}" for line in _wrap(words)]
+    body = (
+        lines[0] if len(lines) == 1 else "\\begin{array}{l}" + " \\\\ ".join(lines) + "\\end{array}"
+    )
+    return f"\\color{{gray}}{{\\small {body}}}"
+
+
 def _call(value):
     return value() if callable(value) else value
 
@@ -87,11 +114,11 @@ def derivation_latex(derivation, show: str = "steps") -> str:
         if previous_kind is not None and step.kind != previous_kind:
             lines.append(r"\\[-0.4em]")  # a little air between the differential and the result
         shown_lhs = "" if lhs == previous_lhs else lhs
-        rule = f"&& \\text{{{latex_text(step.rule)}}}" if step.rule else ""
+        rule = f"&& {rule_latex(step.rule)}" if step.rule else ""
         lines.append(f"{shown_lhs} &= {rhs} {rule}".rstrip())
         previous_kind, previous_lhs = step.kind, lhs
     if not derivation.is_scalar and show != "none":
-        lines.append(f"&& \\text{{{latex_text(_jacobian_note(derivation))}}}")
+        lines.append(f"&& {rule_latex(_jacobian_note(derivation))}")
     body = " \\\\\n".join(line for line in lines if line != r"\\[-0.4em]")
     return "$$\n\\begin{aligned}\n" + body + "\n\\end{aligned}\n$$"
 
