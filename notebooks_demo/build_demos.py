@@ -80,7 +80,12 @@ nll = days * logdet(S) + trace(solve(S, Z.T @ Z))""",
     (
         "code",
         """x0 = nll_factor_pack(L=np.eye(n_probes) * 0.1)
-objective = lambda flat: nll_factor_objective(flat, Z=Z, days=days)
+
+
+def objective(flat):
+    return nll_factor_objective(flat, Z=Z, days=days)
+
+
 fit = optimize.minimize(objective, x0, jac=True, method="L-BFGS-B",
                         options={"maxiter": 5000, "gtol": 1e-9, "ftol": 1e-15})
 L_fit = nll_factor_unpack(fit.x)
@@ -130,7 +135,8 @@ rng = np.random.default_rng(7)
 n_stores, n_weeks, rank = 9, 16, 3
 size = rng.uniform(0.6, 1.8, n_stores)
 season = 1.0 + 0.3 * np.sin(np.linspace(0, 2 * np.pi, n_weeks))
-promo = np.zeros(n_weeks); promo[[4, 5, 11]] = 1.0
+promo = np.zeros(n_weeks)
+promo[[4, 5, 11]] = 1.0
 urban = rng.uniform(0, 1, n_stores)
 P = np.outer(size, season) + 0.4 * np.outer(urban, promo)
 P = P + rng.normal(0, 0.03, (n_stores, n_weeks))
@@ -168,7 +174,7 @@ def over_V(flat, U):
     return loss(P=P, U=U, V=V_, mu=mu), grad_loss(P=P, U=U, V=V_, mu=mu)[1].ravel()
 
 history = []
-for sweep in range(8):
+for _ in range(12):
     step = optimize.minimize(over_U, U.ravel(), args=(V,), jac=True, method="L-BFGS-B")
     U = step.x.reshape(n_stores, rank)
     step = optimize.minimize(over_V, V.ravel(), args=(U,), jac=True, method="L-BFGS-B")

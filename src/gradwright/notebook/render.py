@@ -7,7 +7,6 @@ the terminal alike.
 from __future__ import annotations
 
 import html
-import re
 
 __all__ = [
     "SHOW_CHOICES",
