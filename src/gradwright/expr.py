@@ -1067,6 +1067,9 @@ def inverse(a: Expr) -> Expr:
         return a.args[0]
     if type(a) is Identity:
         return a
+    if type(a) is Mul and a.scalar_factors and len(a.array_factors) == 1:
+        inv_scalars = [power(f, Const(-1)) for f in a.scalar_factors]
+        return mul(*inv_scalars, inverse(a.array_factors[0]))
     return Inverse(a)
 
 
