@@ -107,15 +107,19 @@ def _solve_affine(h: E.Expr, x: E.Symbol) -> E.Expr:
             *(E.mul(s, E.matmul(*a)) if a else E.mul(s, E.Identity(n_rows)) for s, a, _ in parts)
         )
         k = _common_factor(m)
-        return simplify(E.solve(simplify(E.div(m, k)), E.div(E.neg(c), k)))
+        return simplify(E.solve(simplify(_divide(m, k)), _divide(E.neg(c), k)))
     if right_only:
         m = E.add(*(E.mul(s, E.matmul(*b)) for s, _, b in parts))
         k = _common_factor(m)
-        return simplify(E.matmul(E.div(E.neg(c), k), E.inverse(simplify(E.div(m, k)))))
+        return simplify(E.matmul(_divide(E.neg(c), k), E.inverse(simplify(_divide(m, k)))))
     raise NotSupportedError(
         "not supported yet: a closed form for A X B + C = 0 with factors on both sides "
         "(a Sylvester-type equation)"
     )
+
+
+def _divide(e: E.Expr, k: E.Const) -> E.Expr:
+    return E.add(*(E.div(t, k) for t in _terms(e)))
 
 
 def _common_factor(e: E.Expr) -> E.Const:
