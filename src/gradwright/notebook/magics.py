@@ -45,7 +45,7 @@ class GradwrightMagics(Magics):
         self.last_derivation = None
 
     # -- %%derive -------------------------------------------------------------------------
-    @magic_arguments()
+    @magic_arguments("%derive")  # shown as %%derive in the generated help
     @argument(
         "variables",
         nargs="+",
