@@ -737,12 +737,15 @@ def add(*terms: Expr) -> Expr:
     groups: dict = {}
     order: list = []
     constant = Fraction(0)
+    const_at = None
     for t in flat:
         if is_zero(t):
             continue
         c, rest = split_coef(t)
         if rest is None:
             constant += c
+            if const_at is None:
+                const_at = len(order)
             continue
         if rest in groups:
             groups[rest] += c
@@ -750,11 +753,13 @@ def add(*terms: Expr) -> Expr:
             groups[rest] = c
             order.append(rest)
     out = []
-    for rest in order:
+    for i, rest in enumerate(order):
+        if i == const_at and constant != 0:
+            out.append(Const(constant))
         c = groups[rest]
         if c != 0:
             out.append(rest if c == 1 else mul(Const(c), rest))
-    if constant != 0:
+    if constant != 0 and (const_at is None or const_at >= len(order)):
         out.append(Const(constant))
     if not out:
         return zero_like(shape)
