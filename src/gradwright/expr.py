@@ -1082,6 +1082,11 @@ def sym_part(g: Expr) -> Expr:
     """(G + G^T) / 2, the gradient in the space of symmetric matrices."""
     if is_symmetric(g):
         return g
+    if type(g) is Add:
+        return add(*(sym_part(t) for t in g.args))
+    c, rest = split_coef(g)
+    if c != 1 and rest is not None:
+        return mul(Const(c), sym_part(rest))
     return mul(Const(Fraction(1, 2)), add(g, transpose(g)))
 
 

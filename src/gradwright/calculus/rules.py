@@ -41,6 +41,11 @@ for _cls in (E.Const, E.Identity, E.Ones, E.Zero, E.Commutation, E.Differential)
     RULES[_cls] = Rule("constants have zero differential", True, lambda x, d: _zero(x))
 
 
+@rule(E.Symbol, "differential of a variable", structural=True)
+def _symbol(x, d):
+    return E.Differential(x)  # the driver only reaches here for a variable
+
+
 @rule(E.Named, "definition", structural=True)
 def _named(x, d):
     return d(x.body)
