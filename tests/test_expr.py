@@ -128,7 +128,9 @@ def test_smart_constructors_keep_canonical_forms():
 def test_vectors_follow_numpy_one_dimensional_rules():
     b = parse_block("x: (n,)\nA: (n, n)\nf = x @ A @ x")
     assert b.expr.shape == E.SCALAR
-    assert b.expr == E.MatMul(E.Transpose(b.declarations["x"]), b.declarations["A"], b.declarations["x"])
+    assert b.expr == E.MatMul(
+        E.Transpose(b.declarations["x"]), b.declarations["A"], b.declarations["x"]
+    )
     b = parse_block("x: (n,)\nA: (n, k)\nf = x @ A")
     assert b.expr.shape == (E.Dim.of("k"), None)  # a 1-D result, held as a column
     b = parse_block("x: (n,)\nf = x.T")

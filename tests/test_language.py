@@ -36,7 +36,11 @@ def test_block_with_comments_definitions_and_target():
     assert b.target == "loss"
     assert list(b.declarations) == ["P", "U", "V", "mu"]
     assert list(b.definitions) == ["R", "loss"]
-    assert b.dims == {"s": [("P", 0), ("U", 0)], "w": [("P", 1), ("V", 0)], "r": [("U", 1), ("V", 1)]}
+    assert b.dims == {
+        "s": [("P", 0), ("U", 0)],
+        "w": [("P", 1), ("V", 0)],
+        "r": [("U", 1), ("V", 1)],
+    }
 
 
 def test_continuation_lines_inside_parentheses():

@@ -40,9 +40,7 @@ def test_rewrites_keep_values(formula, rewrite):
 def test_least_squares_gradient_is_short():
     d = derive("X: (n, p)\nW: (p, k)\nY: (n, k)\nf = sum((X @ W - Y)**2)", wrt="W")
     assert text(d.gradient("W")) == "2 * (X.T @ (X @ W - Y))"
-    d = derive(
-        "X: (n, p)\nW: (p, k)\nY: (n, k)\nf = trace((X @ W - Y).T @ (X @ W - Y))", wrt="W"
-    )
+    d = derive("X: (n, p)\nW: (p, k)\nY: (n, k)\nf = trace((X @ W - Y).T @ (X @ W - Y))", wrt="W")
     assert text(d.gradient("W")) == "2 * (X.T @ (X @ W - Y))"
 
 

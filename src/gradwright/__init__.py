@@ -56,7 +56,9 @@ def derive(text: str, wrt, *, shapes: dict | None = None, sizes: dict | None = N
             )
         if w not in block.declarations:
             known = ", ".join(block.declarations) or "none"
-            raise FormulaError(f"unknown variable {w!r}: declare it in the block (declared: {known})")
+            raise FormulaError(
+                f"unknown variable {w!r}: declare it in the block (declared: {known})"
+            )
         seen.append(w)
     if sizes is not None:
         for k, v in sizes.items():

@@ -1,6 +1,6 @@
 """The command line: derive a block file and print the steps, shapes, derivative and code.
 
-    python -m gradwright derive FILE --wrt U V [--show steps|result|latex|code]
+python -m gradwright derive FILE --wrt U V [--show steps|result|latex|code]
 """
 
 from __future__ import annotations
@@ -72,7 +72,9 @@ def main(argv: list[str] | None = None) -> int:
         if args.show == "latex":
             parts.append(d.latex())
         if args.show in ("all", "code"):
-            parts.append(d.source() if args.show == "code" else "Generated NumPy code\n" + d.source())
+            parts.append(
+                d.source() if args.show == "code" else "Generated NumPy code\n" + d.source()
+            )
     except FormulaError as err:
         where = "" if args.file == "-" else f"{args.file}: "
         print(f"gradwright: {where}{err}", file=sys.stderr)

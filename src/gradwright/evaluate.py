@@ -103,8 +103,10 @@ class _Evaluator:
     def _Differential(self, e):
         name = e.symbol.name
         if name not in self.differentials:
-            return np.zeros_like(self.arrays[name]) if name in self.arrays else np.zeros(
-                (self.size(e.shape[0]), self.size(e.shape[1]))
+            return (
+                np.zeros_like(self.arrays[name])
+                if name in self.arrays
+                else np.zeros((self.size(e.shape[0]), self.size(e.shape[1])))
             )
         return self.differentials[name]
 
@@ -257,9 +259,7 @@ def evaluate(e: E.Expr, arrays: dict, differentials: dict | None = None, dims: d
         if type(n) is E.Differential:
             shapes.setdefault(n.symbol.name, n.symbol.shape)
     internal = {k: to_internal(v, shapes[k]) for k, v in arrays.items() if k in shapes}
-    diffs = {
-        k: to_internal(v, shapes[k]) for k, v in (differentials or {}).items() if k in shapes
-    }
+    diffs = {k: to_internal(v, shapes[k]) for k, v in (differentials or {}).items() if k in shapes}
     all_dims = _infer_dims(e, internal)
     all_dims.update(dims or {})
     out = _Evaluator(internal, diffs, all_dims).ev(e)

@@ -7,9 +7,9 @@ Shapes are internal 2-tuples `(rows, cols)` of `Dim`, where `None` marks the uni
 from __future__ import annotations
 
 import math
+from collections.abc import Iterable
 from dataclasses import dataclass
 from fractions import Fraction
-from typing import Iterable, Optional
 
 from .errors import ShapeError
 
@@ -57,7 +57,7 @@ class Dim:
         return self.coef if not self.names else str(self)
 
 
-OptDim = Optional[Dim]
+OptDim = Dim | None
 Shape = tuple  # tuple[OptDim, OptDim]
 SCALAR: Shape = (None, None)
 

@@ -34,9 +34,11 @@ def sample_symbol(sym: E.Symbol, sizes: dict, rng: np.random.Generator, positive
         q, rr = np.linalg.qr(rng.standard_normal((n, n)))
         out = q * np.sign(np.diag(rr))
     elif "diagonal" in words:
-        v = rng.uniform(0.5, 2.0, n) if ("positive" in words or positive) else rng.uniform(
-            0.5, 2.0, n
-        ) * rng.choice([-1.0, 1.0], n)
+        v = (
+            rng.uniform(0.5, 2.0, n)
+            if ("positive" in words or positive)
+            else rng.uniform(0.5, 2.0, n) * rng.choice([-1.0, 1.0], n)
+        )
         out = np.diag(v)
     elif "symmetric" in words:
         a = rng.standard_normal((n, n))

@@ -42,8 +42,14 @@ class StationaryPoint:
         spec = C.FunctionSpec(
             f"stationary_{self.var}",
             f"The closed-form stationary point of {d.target} in {self.var} ({self.how}).",
-            [C.Output("point", C.lower(self.expression, cost), self.expression.shape,
-                      "the stationary point")],  # fmt: skip
+            [
+                C.Output(
+                    "point",
+                    C.lower(self.expression, cost),
+                    self.expression.shape,
+                    "the stationary point",
+                )
+            ],  # fmt: skip
             "point" if not self.expression.is_scalar else "np.asarray(point)[()]",
         )
         fn = gen.function(spec)
@@ -145,7 +151,9 @@ def stationary_point(derivation, var: str) -> StationaryPoint:
         raise NotSupportedError("a stationary point needs a scalar target")
     g = simplify(E.inline_named(derivation._raw_gradient(var)))
     if _is_affine(g, var):
-        return StationaryPoint(var, _solve_affine(expand(g), x), "the gradient is affine", derivation)
+        return StationaryPoint(
+            var, _solve_affine(expand(g), x), "the gradient is affine", derivation
+        )
     if E.is_matrix_shape(x.shape) and x.shape[0] == x.shape[1]:
         h = simplify(expand(E.matmul(x, expand(g), x)))
         if _is_affine(h, var):

@@ -8,8 +8,8 @@ for derivatives, shared subexpressions computed once, chains ordered by a cost m
 from __future__ import annotations
 
 import keyword
-from types import SimpleNamespace
 from dataclasses import dataclass, field
+from types import SimpleNamespace
 
 from .. import expr as E
 from . import precedence as P
@@ -66,13 +66,13 @@ def _gw_check(specs):
             raise ValueError(f"{name} has {n} {word} but {d} = {want}")
     return out, dims
 ''',
-    "_gw_finite": '''
+    "_gw_finite": """
 def _gw_finite(value, what):
     if not np.all(np.isfinite(value)):
         warnings.warn(f"{what} is not finite (inf or nan)", RuntimeWarning, stacklevel=3)
     return value
-''',
-    "_gw_solve": '''
+""",
+    "_gw_solve": """
 def _gw_solve(a, b, label):
     try:
         return np.linalg.solve(a, b)
@@ -80,22 +80,24 @@ def _gw_solve(a, b, label):
         raise np.linalg.LinAlgError(
             f"{label} is singular: solving with it needs an invertible matrix"
         ) from None
-''',
-    "_gw_inv": '''
+""",
+    "_gw_inv": """
 def _gw_inv(a, label):
     try:
         return np.linalg.inv(a)
     except np.linalg.LinAlgError:
-        raise np.linalg.LinAlgError(f"{label} is singular: inv needs an invertible matrix") from None
-''',
-    "_gw_logdet": '''
+        raise np.linalg.LinAlgError(
+            f"{label} is singular: inv needs an invertible matrix"
+        ) from None
+""",
+    "_gw_logdet": """
 def _gw_logdet(a, label):
     sign, value = np.linalg.slogdet(a)
     if sign == 0:
         raise np.linalg.LinAlgError(f"{label} is singular: logdet needs an invertible matrix")
     return value
-''',
-    "_gw_cho": '''
+""",
+    "_gw_cho": """
 def _gw_cho(a, label):
     try:
         return cho_factor(a)
@@ -103,30 +105,30 @@ def _gw_cho(a, label):
         raise np.linalg.LinAlgError(
             f"{label} is not positive definite (it is declared spd)"
         ) from None
-''',
-    "_gw_sigmoid": '''
+""",
+    "_gw_sigmoid": """
 def _gw_sigmoid(x):
     return 0.5 * (1.0 + np.tanh(0.5 * x))
-''',
-    "_gw_logsumexp": '''
+""",
+    "_gw_logsumexp": """
 def _gw_logsumexp(a):
     m = np.max(np.real(a))
     return m + np.log(np.sum(np.exp(a - m)))
-''',
-    "_gw_softmax": '''
+""",
+    "_gw_softmax": """
 def _gw_softmax(x):
     z = np.exp(x - np.max(np.real(x)))
     return z / np.sum(z)
-''',
-    "_gw_commutation": '''
+""",
+    "_gw_commutation": """
 def _gw_commutation(m, n):
     k = np.zeros((m * n, m * n))
     for i in range(m):
         for j in range(n):
             k[j + i * n, i + j * m] = 1.0
     return k
-''',
-    "_gw_kron_contract": '''
+""",
+    "_gw_kron_contract": """
 def _gw_kron_contract(g, other, rows, cols, side):
     other2 = np.atleast_2d(other) if np.ndim(other) else np.reshape(other, (1, 1))
     g2 = np.reshape(g, (-1, 1)) if np.ndim(g) == 1 else g
@@ -137,7 +139,7 @@ def _gw_kron_contract(g, other, rows, cols, side):
         m, n = other2.shape
         out = np.einsum("ikjl,ij->kl", g2.reshape(m, rows, n, cols), other2)
     return out
-''',
+""",
 }
 
 FUNC_CODE = {
@@ -488,9 +490,8 @@ class NumpyPrinter(TextPrinter):
             best = None
             for k in range(1, len(fs)):
                 left, right = fs[:k], fs[k:]
-                c = (
-                    (self.gen.cost.chain_order(left)[0] if len(left) > 1 else 0)
-                    + (self.gen.cost.chain_order(right)[0] if len(right) > 1 else 0)
+                c = (self.gen.cost.chain_order(left)[0] if len(left) > 1 else 0) + (
+                    self.gen.cost.chain_order(right)[0] if len(right) > 1 else 0
                 )
                 if best is None or c < best[0]:
                     best = (c, k)
@@ -662,9 +663,7 @@ class CodeGen:
             name = f"_chol{len(self.cholesky)}"
             self.cholesky[a] = name
             self.uses_scipy = True
-            self.lines.append(
-                f"    {name} = _gw_cho({printer._print(a)}, {printer.label(a)})"
-            )
+            self.lines.append(f"    {name} = _gw_cho({printer._print(a)}, {printer.label(a)})")
         return name
 
     def signature(self, direction: str | None) -> str:
