@@ -12,7 +12,7 @@ from numpy_eval import differential_argument, parse_declaration
 
 from gradwright import identities
 from gradwright.identities.catalogue import RECORDS
-from gradwright.identities.record import FAMILY_TAGS, KINDS, STRUCTURE_WORDS
+from gradwright.identities.record import APPLY_DIRECTIONS, FAMILY_TAGS, KINDS, STRUCTURE_WORDS
 
 REQUIRED = (
     "id",
@@ -27,7 +27,7 @@ REQUIRED = (
     "source",
     "kind",
 )
-OPTIONAL = ("wrt", "aliases")
+OPTIONAL = ("wrt", "aliases", "apply")
 FUNCTIONS = {
     "trace", "det", "logdet", "inv", "solve", "kron", "vec", "diag", "diagm", "sum", "norm",
     "exp", "log", "sqrt", "sin", "cos", "tanh", "sigmoid", "softplus", "logsumexp", "softmax",
@@ -65,6 +65,7 @@ def test_id_is_stable_kebab_case(record):
 @pytest.mark.parametrize("record", RECORDS, ids=IDS)
 def test_kind_and_wrt(record):
     assert record["kind"] in KINDS
+    assert record.get("apply", "both") in APPLY_DIRECTIONS
     if record["kind"] == "derivative":
         names = [parse_declaration(line)[0] for line in record["declarations"]]
         assert record.get("wrt") in names, f"{record['id']}: wrt must name a declared symbol"

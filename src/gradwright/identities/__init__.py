@@ -14,14 +14,12 @@ def all() -> list[Identity]:  # noqa: A001 - the catalogue's public name
     return all_identities()
 
 
-def applicable(expression_or_block, *, shapes=None, limit=None):
-    """The identities whose one side matches a subexpression of the given expression.
-
-    See `gradwright.identities.apply.applicable`.
-    """
+def applicable(expression_or_block, *, shapes=None, limit=None, verify=True):
+    """The identities whose one side matches a subexpression of the given expression, each as
+    a `Match` with the rewrite; see `gradwright.identities.apply.applicable`."""
     from .apply import applicable as _applicable
 
-    return _applicable(expression_or_block, shapes=shapes, limit=limit)
+    return _applicable(expression_or_block, shapes=shapes, limit=limit, verify=verify)
 
 
 __all__ = [

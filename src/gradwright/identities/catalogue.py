@@ -9,7 +9,9 @@ differential of the declared symbol X), `conditions` (words, where shapes cannot
 `latex_lhs`, `latex_rhs`, `source` (publication, equation, "(from memory)" when not checked),
 `kind` ("equality", "differential" or "derivative"; a derivative record has `lhs` the scalar
 function, `rhs` its gradient and `wrt` the variable). Optional: `aliases`, other names a
-practitioner may search for ("matrix inversion lemma").
+practitioner may search for ("matrix inversion lemma"); `apply`, the directions in which
+`applicable` offers the identity as a rewrite: "both" (the default), "forward" (lhs -> rhs),
+"backward" (rhs -> lhs) or "none".
 """
 
 RECORDS = [
@@ -186,6 +188,7 @@ RECORDS = [
         "latex_rhs": r"\sum_i A_{ii}",
         "source": "Petersen & Pedersen, The Matrix Cookbook (Nov. 15, 2012), eq. (11) (from memory)",
         "kind": "equality",
+        "apply": "backward",
     },
     {
         "id": "trace-of-diagonal-matrix",
@@ -212,6 +215,7 @@ RECORDS = [
         "latex_rhs": r"4",
         "source": "Petersen & Pedersen, The Matrix Cookbook (Nov. 15, 2012), eq. (11) (from memory)",
         "kind": "equality",
+        "apply": "forward",
     },
     {
         "id": "trace-symmetric-times-antisymmetric",
@@ -762,6 +766,7 @@ RECORDS = [
         "latex_rhs": r"\operatorname{vec}(A)",
         "source": "Magnus & Neudecker, Matrix Differential Calculus, 3rd ed., Ch. 3, Sec. 3.7 (from memory)",
         "kind": "equality",
+        "apply": "forward",
     },
     {
         "id": "commutation-trace-square",
@@ -775,6 +780,7 @@ RECORDS = [
         "latex_rhs": r"3",
         "source": "Magnus & Neudecker, Matrix Differential Calculus, 3rd ed., Ch. 3, Sec. 3.7 (from memory)",
         "kind": "equality",
+        "apply": "forward",
     },
     {
         "id": "commutation-vec-of-kronecker",
@@ -898,6 +904,19 @@ RECORDS = [
         "latex_lhs": r"(A + B B^\top)^{-1} B",
         "latex_rhs": r"A^{-1} B (I_k + B^\top A^{-1} B)^{-1}",
         "source": "Petersen & Pedersen, The Matrix Cookbook (Nov. 15, 2012), eq. (164) (from memory)",
+        "kind": "equality",
+    },
+    {
+        "id": "woodbury-gram-update",
+        "title": "Woodbury identity for a Gram update A + B B^T",
+        "tags": ("inverse", "woodbury", "low-rank", "update", "sum"),
+        "declarations": ("A: (n, n) spd", "B: (n, k)"),
+        "lhs": "inv(A + B @ B.T)",
+        "rhs": "inv(A) - inv(A) @ B @ inv(eye(k) + B.T @ inv(A) @ B) @ B.T @ inv(A)",
+        "conditions": "A invertible",
+        "latex_lhs": r"(A + B B^\top)^{-1}",
+        "latex_rhs": r"A^{-1} - A^{-1} B (I_k + B^\top A^{-1} B)^{-1} B^\top A^{-1}",
+        "source": "Petersen & Pedersen, The Matrix Cookbook (Nov. 15, 2012), eq. (156) (from memory)",
         "kind": "equality",
     },
     {
@@ -1337,6 +1356,33 @@ RECORDS = [
         "source": "Petersen & Pedersen, The Matrix Cookbook (Nov. 15, 2012), eqs. (21)-(22) (from memory)",
         "kind": "equality",
     },
+    {
+        "id": "logdet-rank-one-update",
+        "title": "log-determinant of a positive definite matrix plus a rank-one term",
+        "tags": ("determinant", "logdet", "lemma", "rank-one", "update", "outer"),
+        "declarations": ("S: (n, n) spd", "u: (n,)"),
+        "lhs": "logdet(S + outer(u, u))",
+        "rhs": "logdet(S) + log(1 + u @ solve(S, u))",
+        "conditions": "S symmetric positive definite",
+        "latex_lhs": r"\log\det(S + u u^\top)",
+        "latex_rhs": r"\log\det S + \log(1 + u^\top S^{-1} u)",
+        "source": "Harville, Matrix Algebra From a Statistician's Perspective (1997), Corollary 18.1.3 (from memory)",
+        "kind": "equality",
+        "aliases": ("log-determinant lemma",),
+    },
+    {
+        "id": "logdet-low-rank-update",
+        "title": "log-determinant of a positive definite matrix plus a low-rank Gram term",
+        "tags": ("determinant", "logdet", "lemma", "low-rank", "update"),
+        "declarations": ("S: (n, n) spd", "B: (n, k)"),
+        "lhs": "logdet(S + B @ B.T)",
+        "rhs": "logdet(S) + logdet(eye(k) + B.T @ solve(S, B))",
+        "conditions": "S symmetric positive definite",
+        "latex_lhs": r"\log\det(S + B B^\top)",
+        "latex_rhs": r"\log\det S + \log\det(I_k + B^\top S^{-1} B)",
+        "source": "Harville, Matrix Algebra From a Statistician's Perspective (1997), Theorem 18.1.1 (from memory)",
+        "kind": "equality",
+    },
     # ----------------------------------------------------------------------------------------
     # Hadamard and diagonal
     # ----------------------------------------------------------------------------------------
@@ -1613,6 +1659,7 @@ RECORDS = [
         "latex_rhs": r"A",
         "source": "Horn & Johnson, Topics in Matrix Analysis (1991), Sec. 5.1 (from memory)",
         "kind": "equality",
+        "apply": "forward",
     },
     {
         "id": "hadamard-square-is-power",
@@ -1652,6 +1699,7 @@ RECORDS = [
         "latex_rhs": r"\operatorname{tr}(J_{n,m} A)",
         "source": "Harville, Matrix Algebra From a Statistician's Perspective (1997), Sec. 5.1 (from memory)",
         "kind": "equality",
+        "apply": "backward",
     },
     # ----------------------------------------------------------------------------------------
     # norms
@@ -1695,6 +1743,7 @@ RECORDS = [
         "latex_rhs": r"\lVert \operatorname{vec}(A) \rVert_2",
         "source": "Magnus & Neudecker, Matrix Differential Calculus, 3rd ed., Ch. 1, Sec. 1.10 (from memory)",
         "kind": "equality",
+        "apply": "backward",
     },
     {
         "id": "frobenius-norm-as-sum-of-squares",
@@ -2157,6 +2206,58 @@ RECORDS = [
         "source": "Petersen & Pedersen, The Matrix Cookbook (Nov. 15, 2012), eq. (34) (from memory)",
         "kind": "differential",
     },
+    {
+        "id": "differential-of-matrix-times-vector",
+        "title": "differential of a matrix times a vector (product rule)",
+        "tags": ("differential", "product", "vector", "rule"),
+        "declarations": ("W: (m, n)", "x: (n,)"),
+        "lhs": "d(W @ x)",
+        "rhs": "d(W) @ x + W @ d(x)",
+        "conditions": "",
+        "latex_lhs": r"\mathrm{d}(W x)",
+        "latex_rhs": r"(\mathrm{d}W) x + W \mathrm{d}x",
+        "source": "Petersen & Pedersen, The Matrix Cookbook (Nov. 15, 2012), eq. (37) (from memory)",
+        "kind": "differential",
+    },
+    {
+        "id": "differential-of-entrywise-tanh",
+        "title": "differential of the entrywise hyperbolic tangent",
+        "tags": ("differential", "entrywise", "tanh", "hadamard", "activation"),
+        "declarations": ("X: (m, n)",),
+        "lhs": "d(tanh(X))",
+        "rhs": "(1 - tanh(X)**2) * d(X)",
+        "conditions": "",
+        "latex_lhs": r"\mathrm{d}\tanh^{\circ}(X)",
+        "latex_rhs": r"\big(1 - \tanh^{\circ}(X)^{\circ 2}\big) \circ \mathrm{d}X",
+        "source": "Abramowitz & Stegun, Handbook of Mathematical Functions (1964), eq. 4.5.19 (from memory)",
+        "kind": "differential",
+    },
+    {
+        "id": "differential-of-entrywise-tanh-vector",
+        "title": "differential of the entrywise hyperbolic tangent of a vector",
+        "tags": ("differential", "entrywise", "tanh", "hadamard", "vector", "activation"),
+        "declarations": ("x: (n,)",),
+        "lhs": "d(tanh(x))",
+        "rhs": "(1 - tanh(x)**2) * d(x)",
+        "conditions": "",
+        "latex_lhs": r"\mathrm{d}\tanh^{\circ}(x)",
+        "latex_rhs": r"\big(1 - \tanh^{\circ}(x)^{\circ 2}\big) \circ \mathrm{d}x",
+        "source": "Abramowitz & Stegun, Handbook of Mathematical Functions (1964), eq. 4.5.19 (from memory)",
+        "kind": "differential",
+    },
+    {
+        "id": "differential-of-entrywise-sigmoid",
+        "title": "differential of the entrywise logistic sigmoid",
+        "tags": ("differential", "entrywise", "sigmoid", "logistic", "hadamard", "activation"),
+        "declarations": ("X: (m, n)",),
+        "lhs": "d(sigmoid(X))",
+        "rhs": "sigmoid(X) * (1 - sigmoid(X)) * d(X)",
+        "conditions": "",
+        "latex_lhs": r"\mathrm{d}\sigma^{\circ}(X)",
+        "latex_rhs": r"\sigma^{\circ}(X) \circ \big(1 - \sigma^{\circ}(X)\big) \circ \mathrm{d}X",
+        "source": "Bishop, Pattern Recognition and Machine Learning (2006), eq. (4.88) (from memory)",
+        "kind": "differential",
+    },
     # ----------------------------------------------------------------------------------------
     # identification table: from the differential to the derivative
     # ----------------------------------------------------------------------------------------
@@ -2173,6 +2274,7 @@ RECORDS = [
         "latex_rhs": r"\frac{\partial f}{\partial t} = g",
         "source": "Magnus & Neudecker, Matrix Differential Calculus, 3rd ed., Ch. 9, Table 9.1 (first identification table) (from memory)",
         "kind": "derivative",
+        "apply": "none",
     },
     {
         "id": "identification-vector-variable",
@@ -2187,6 +2289,7 @@ RECORDS = [
         "latex_rhs": r"\frac{\partial f}{\partial x} = a",
         "source": "Magnus & Neudecker, Matrix Differential Calculus, 3rd ed., Ch. 9, Table 9.1 (from memory); Petersen & Pedersen, The Matrix Cookbook (Nov. 15, 2012), eq. (69) (from memory)",
         "kind": "derivative",
+        "apply": "none",
     },
     {
         "id": "identification-matrix-variable",
@@ -2201,6 +2304,7 @@ RECORDS = [
         "latex_rhs": r"\frac{\partial f}{\partial X} = G",
         "source": "Magnus & Neudecker, Matrix Differential Calculus, 3rd ed., Ch. 9, Table 9.1 (from memory); Petersen & Pedersen, The Matrix Cookbook (Nov. 15, 2012), eq. (103) (from memory)",
         "kind": "derivative",
+        "apply": "none",
         "aliases": ("identification theorem", "first identification table"),
     },
     {
@@ -2216,6 +2320,7 @@ RECORDS = [
         "latex_rhs": r"\frac{\partial f}{\partial X} = A^\top",
         "source": "Petersen & Pedersen, The Matrix Cookbook (Nov. 15, 2012), eq. (100) (from memory)",
         "kind": "derivative",
+        "apply": "none",
     },
     # ----------------------------------------------------------------------------------------
     # derivatives (gradients of scalar functions)

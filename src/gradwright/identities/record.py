@@ -8,9 +8,17 @@ from __future__ import annotations
 import re
 from dataclasses import dataclass, field
 
-__all__ = ["Identity", "KINDS", "STRUCTURE_WORDS", "FAMILY_TAGS", "operator_names"]
+__all__ = [
+    "APPLY_DIRECTIONS",
+    "Identity",
+    "KINDS",
+    "STRUCTURE_WORDS",
+    "FAMILY_TAGS",
+    "operator_names",
+]
 
 KINDS = ("equality", "differential", "derivative")
+APPLY_DIRECTIONS = ("both", "forward", "backward", "none")
 
 #: Structure words a catalogue declaration may use (the formula language's words plus the two
 #: the catalogue needs to say what shapes cannot: `square`, `invertible`).
@@ -76,6 +84,7 @@ class Identity:
     kind: str
     wrt: str | None = None
     aliases: tuple[str, ...] = ()
+    apply: str = "both"
     extra: dict = field(default_factory=dict, compare=False, hash=False, repr=False)
 
     @classmethod
@@ -94,6 +103,7 @@ class Identity:
             "kind",
             "wrt",
             "aliases",
+            "apply",
         }
         return cls(
             id=record["id"],
@@ -109,6 +119,7 @@ class Identity:
             kind=record["kind"],
             wrt=record.get("wrt"),
             aliases=tuple(record.get("aliases", ())),
+            apply=record.get("apply", "both"),
             extra={k: v for k, v in record.items() if k not in known},
         )
 

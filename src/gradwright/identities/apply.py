@@ -1,0 +1,756 @@
+"""Applying the catalogue to a user's formula: pattern matching of identity sides on subexpressions.
+
+Each identity side is read by the formula language into a tree whose declared symbols are pattern
+variables; a match binds them (and their dims) consistently, respecting shapes and structure.
+"""
+
+from __future__ import annotations
+
+import itertools
+from dataclasses import dataclass, field
+from functools import lru_cache
+
+import numpy as np
+
+from .. import expr as E
+from .search import all_identities
+
+__all__ = ["Match", "applicable", "compiled_patterns"]
+
+_MAX_MATCHES_PER_NODE = 8
+_MAX_SUBSETS = 64
+
+
+# ---------------------------------------------------------------------------------------------
+# results
+# ---------------------------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class Match:
+    """One way an identity applies to the user's expression.
+
+    `direction` is "forward" (lhs found, replaced by rhs), "backward" (rhs found, replaced by
+    lhs), "differential" (the function of a differential record found: `replacement` is its
+    differential) or "gradient" (a derivative record: `replacement` is the gradient of `matched`
+    with respect to the symbol `wrt`). For the two rewrite directions, `rewritten` is the whole
+    expression with `matched` replaced and evaluates equal to the original.
+    """
+
+    identity: object
+    direction: str
+    matched: E.Expr
+    replacement: E.Expr
+    rewritten: E.Expr
+    bindings: dict = field(compare=False)
+    wrt: str | None = None
+
+    @property
+    def is_rewrite(self) -> bool:
+        return self.direction in ("forward", "backward")
+
+    @property
+    def matched_text(self) -> str:
+        return _text(self.matched)
+
+    @property
+    def replacement_text(self) -> str:
+        return _text(self.replacement)
+
+    @property
+    def text(self) -> str:
+        """The rewritten expression (rewrites), or the differential / gradient found."""
+        if self.direction == "differential":
+            return f"d({self.matched_text}) = {self.replacement_text}"
+        if self.direction == "gradient":
+            return f"gradient of {self.matched_text} in {self.wrt} = {self.replacement_text}"
+        return _text(self.rewritten)
+
+    @property
+    def latex(self) -> str:
+        if self.direction == "differential":
+            return rf"\mathrm{{d}}\left({_latex(self.matched)}\right) = {_latex(self.replacement)}"
+        if self.direction == "gradient":
+            return (
+                rf"\frac{{\partial}}{{\partial {self.wrt}}} {_latex(self.matched)} = "
+                f"{_latex(self.replacement)}"
+            )
+        return _latex(self.rewritten)
+
+    @property
+    def summary(self) -> str:
+        """One line for a user: which identity turns what into what."""
+        arrow = {"forward": "->", "backward": "->", "differential": "d:", "gradient": "grad:"}
+        return (
+            f"{self.identity.id}: {self.matched_text} {arrow[self.direction]} "
+            f"{self.replacement_text}"
+        )
+
+    @property
+    def conditions(self) -> str:
+        return self.identity.conditions
+
+    def __repr__(self) -> str:
+        return f"Match({self.summary!r})"
+
+
+def _text(e):
+    from ..printing import text
+
+    return text(e)
+
+
+def _latex(e):
+    from ..printing import latex
+
+    return latex(e)
+
+
+# ---------------------------------------------------------------------------------------------
+# patterns
+# ---------------------------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class _Pattern:
+    identity: object
+    direction: str
+    lhs: E.Expr
+    rhs: E.Expr
+    variables: frozenset
+    node_types: frozenset
+    wrt: str | None = None
+
+
+def _node_types(e: E.Expr) -> frozenset:
+    return frozenset(type(n) for n in E.walk(e) if type(n) is not E.Symbol)
+
+
+def _operators(e: E.Expr) -> int:
+    return sum(1 for n in E.walk(e) if type(n) not in (E.Symbol, E.Const))
+
+
+def _trivial(e: E.Expr) -> bool:
+    """A side too bare to search for: a lone symbol, a constant, or a tree without symbols."""
+    return type(e) in (E.Symbol, E.Const) or not e.symbols
+
+
+@lru_cache(maxsize=1)
+def compiled_patterns() -> tuple[_Pattern, ...]:
+    """Every usable (identity, direction) pattern, read once."""
+    from ..language import parse_block
+
+    out = []
+    for ident in all_identities():
+
+        def read(text, ident=ident):
+            block = parse_block(
+                "\n".join([*ident.declarations, f"f = {text}"]), allow_differentials=True
+            )
+            return block
+
+        try:
+            if ident.kind == "equality":
+                left, right = read(ident.lhs).expr, read(ident.rhs).expr
+                pairs = [("forward", left, right), ("backward", right, left)]
+            elif ident.kind == "differential":
+                inner = ident.lhs.strip()
+                inner = inner[inner.index("(") + 1 : inner.rindex(")")]
+                pairs = [("differential", read(inner).expr, read(ident.rhs).expr)]
+            else:
+                pairs = [("gradient", read(ident.lhs).expr, read(ident.rhs).expr)]
+        except Exception:  # noqa: BLE001 - a record the reader rejects is simply not applied
+            continue
+        allowed = {"both": ("forward", "backward"), "none": ()}.get(ident.apply, (ident.apply,))
+        for direction, lhs, rhs in pairs:
+            if _trivial(lhs) or lhs == rhs:
+                continue
+            if ident.kind == "equality" and direction not in allowed:
+                continue
+            if ident.kind != "equality" and ident.apply == "none":
+                continue
+            if direction == "backward" and _operators(lhs) == 1 < _operators(rhs):
+                # one bare operation blown up into several (kron(B, A) -> K (A x B) K): noise
+                continue
+            names = frozenset(n.name for n in E.walk(lhs) if type(n) is E.Symbol)
+            needed = {n.name for n in E.walk(rhs) if type(n) is E.Symbol}
+            if not needed <= names:
+                continue
+            out.append(_Pattern(ident, direction, lhs, rhs, names, _node_types(lhs), ident.wrt))
+    return tuple(out)
+
+
+# ---------------------------------------------------------------------------------------------
+# matching
+# ---------------------------------------------------------------------------------------------
+
+
+class _Bindings:
+    """Pattern symbol -> expression and pattern dim name -> Dim, extended functionally."""
+
+    __slots__ = ("vars", "dims")
+
+    def __init__(self, vars_=None, dims=None):
+        self.vars = vars_ or {}
+        self.dims = dims or {}
+
+    def with_var(self, name, value):
+        v = dict(self.vars)
+        v[name] = value
+        return _Bindings(v, self.dims)
+
+    def with_dim(self, name, value):
+        d = dict(self.dims)
+        d[name] = value
+        return _Bindings(self.vars, d)
+
+
+def _unify_dim(pd, td, b: _Bindings):
+    if pd is None or td is None:
+        return b if pd is None and td is None else None
+    if not pd.names:
+        return b if td == pd else None
+    if len(pd.names) == 1 and pd.coef == 1:
+        name = pd.names[0]
+        if name in b.dims:
+            return b if b.dims[name] == td else None
+        return b.with_dim(name, td)
+    mapped = _map_dim(pd, b)
+    return b if mapped is not None and mapped == td else None
+
+
+def _map_dim(pd, b: _Bindings):
+    if pd is None:
+        return None
+    out = E.Dim((), pd.coef)
+    for name in pd.names:
+        if name not in b.dims:
+            return None
+        out = out * b.dims[name]
+    return out
+
+
+def _is_positive(e) -> bool:
+    t = type(e)
+    if t is E.Const:
+        return e.value > 0
+    if t is E.Symbol:
+        return "positive" in e.structure or ("spd" in e.structure and e.is_scalar)
+    if t is E.Named:
+        return _is_positive(e.body)
+    if t is E.Func:
+        return e.name in ("exp", "sigmoid", "softplus")
+    if t is E.Mul:
+        return all(_is_positive(f) for f in e.args)
+    if t is E.Power:
+        return _is_positive(e.args[0])
+    return False
+
+
+def _structure_ok(words, t) -> bool:
+    for word in words:
+        if word in ("square", "invertible"):
+            if not (E.is_matrix_shape(t.shape) and t.shape[0] == t.shape[1]):
+                return False
+        elif word == "symmetric":
+            if not E.is_symmetric(t):
+                return False
+        elif word == "spd":
+            if not E.is_spd(t):
+                return False
+        elif word == "diagonal":
+            if not E.is_diagonal(t):
+                return False
+        elif word == "positive":
+            if not _is_positive(t):
+                return False
+        elif word == "orthogonal":
+            ok = (type(t) is E.Symbol and "orthogonal" in t.structure) or type(t) is E.Identity
+            if not ok:
+                return False
+    return True
+
+
+def _bind_var(p: E.Symbol, t: E.Expr, b: _Bindings):
+    if t.has_differential:
+        return
+    for pd, td in zip(p.shape, t.shape):
+        b = _unify_dim(pd, td, b)
+        if b is None:
+            return
+    if not _structure_ok(p.structure, t):
+        return
+    name = p.name
+    if name in b.vars:
+        if b.vars[name] == t:
+            yield b
+        return
+    yield b.with_var(name, t)
+
+
+def _match(p: E.Expr, t: E.Expr, b: _Bindings):
+    tp = type(p)
+    if tp is E.Symbol:
+        yield from _bind_var(p, t, b)
+        return
+    if type(t) is E.Named:
+        yield from _match(p, t.body, b)
+        return
+    if tp is not type(t):
+        return
+    if tp is E.Const:
+        if p == t:
+            yield b
+        return
+    if tp is E.Identity:
+        b2 = _unify_dim(p.args[0], t.args[0], b)
+        if b2 is not None:
+            yield b2
+        return
+    if tp in (E.Ones, E.Zero):
+        b2 = b
+        for pd, td in zip(p.shape, t.shape):
+            b2 = _unify_dim(pd, td, b2) if b2 is not None else None
+        if b2 is not None:
+            yield b2
+        return
+    if tp is E.Commutation:
+        b2 = _unify_dim(p.args[0], t.args[0], b)
+        b2 = _unify_dim(p.args[1], t.args[1], b2) if b2 is not None else None
+        if b2 is not None:
+            yield b2
+        return
+    if tp is E.Func:
+        if p.name == t.name:
+            yield from _match(p.arg, t.arg, b)
+        return
+    if tp is E.MatPow:
+        if p.args[1] == t.args[1]:
+            yield from _match(p.args[0], t.args[0], b)
+        return
+    if tp in (E.Add, E.Mul):
+        yield from _match_commutative(p.args, t.args, b, tp)
+        return
+    if tp is E.MatMul:
+        yield from _match_chain(p.args, t.args, 0, 0, b)
+        return
+    yield from _match_seq(p.children, t.children, b)
+
+
+def _match_seq(ps, ts, b):
+    if len(ps) != len(ts):
+        return
+    if not ps:
+        yield b
+        return
+    for b2 in _match(ps[0], ts[0], b):
+        yield from _match_seq(ps[1:], ts[1:], b2)
+
+
+def _combine(kind, parts):
+    if len(parts) == 1:
+        return parts[0]
+    return E.add(*parts) if kind is E.Add else E.mul(*parts)
+
+
+def _match_commutative(ps, ts, b, kind):
+    """Match pattern terms to target terms in any order; one pattern symbol may take the rest."""
+    if len(ts) < len(ps):
+        return
+    fixed = [p for p in ps if type(p) is not E.Symbol]
+    free = [p for p in ps if type(p) is E.Symbol]
+
+    def assign_fixed(i, used, b):
+        if i == len(fixed):
+            yield used, b
+            return
+        for j, t in enumerate(ts):
+            if j in used:
+                continue
+            for b2 in _match(fixed[i], t, b):
+                yield from assign_fixed(i + 1, used | {j}, b2)
+
+    for used, b1 in assign_fixed(0, frozenset(), b):
+        rest = [t for j, t in enumerate(ts) if j not in used]
+        if not free:
+            if not rest:
+                yield b1
+            continue
+        if len(rest) < len(free):
+            continue
+        if len(rest) == len(free):
+            for perm in itertools.permutations(rest):
+                yield from _bind_all(free, list(perm), b1)
+            continue
+        # one free symbol takes several terms, the others one each
+        for k, absorber in enumerate(free):
+            others = free[:k] + free[k + 1 :]
+            for chosen in itertools.permutations(range(len(rest)), len(others)):
+                left = [t for j, t in enumerate(rest) if j not in chosen]
+                try:
+                    combined = _combine(kind, left)
+                except Exception:  # noqa: BLE001 - shapes that do not combine do not match
+                    continue
+                yield from _bind_all(
+                    [*others, absorber], [rest[j] for j in chosen] + [combined], b1
+                )
+
+
+def _bind_all(ps, ts, b):
+    if not ps:
+        yield b
+        return
+    for b2 in _bind_var(ps[0], ts[0], b):
+        yield from _bind_all(ps[1:], ts[1:], b2)
+
+
+def _run_transpose(run):
+    """X with X.T == matmul(*run), when every factor of the run is a transpose or symmetric."""
+    if not all(type(f) is E.Transpose or E.is_symmetric(f) for f in run):
+        return None
+    x = E.transpose(E.matmul(*run))
+    return None if type(x) is E.Transpose else x
+
+
+def _match_chain(ps, ts, i, j, b):
+    """Match the pattern chain ps[i:] to exactly the target chain ts[j:]."""
+    if i == len(ps):
+        if j == len(ts):
+            yield b
+        return
+    p = ps[i]
+    room = len(ts) - j - (len(ps) - i - 1)
+    if room < 1:
+        return
+    if type(p) is E.Symbol:
+        for k in range(1, room + 1):
+            run = ts[j : j + k]
+            try:
+                cand = run[0] if k == 1 else E.matmul(*run)
+            except Exception:  # noqa: BLE001
+                continue
+            for b2 in _bind_var(p, cand, b):
+                yield from _match_chain(ps, ts, i + 1, j + k, b2)
+        return
+    if type(p) is E.Transpose and type(p.args[0]) is E.Symbol:
+        for b2 in _match(p, ts[j], b):
+            yield from _match_chain(ps, ts, i + 1, j + 1, b2)
+        for k in range(2, room + 1):
+            x = _run_transpose(ts[j : j + k])
+            if x is None:
+                continue
+            for b2 in _bind_var(p.args[0], x, b):
+                yield from _match_chain(ps, ts, i + 1, j + k, b2)
+        return
+    for b2 in _match(p, ts[j], b):
+        yield from _match_chain(ps, ts, i + 1, j + 1, b2)
+
+
+# ---------------------------------------------------------------------------------------------
+# building the replacement
+# ---------------------------------------------------------------------------------------------
+
+
+class _Unbound(Exception):
+    pass
+
+
+def _build(r: E.Expr, b: _Bindings) -> E.Expr:
+    t = type(r)
+    if t is E.Symbol:
+        if r.name not in b.vars:
+            raise _Unbound(r.name)
+        return b.vars[r.name]
+    if t is E.Differential:
+        target = b.vars.get(r.symbol.name)
+        if target is None:
+            raise _Unbound(r.symbol.name)
+        # a symbol's differential is a leaf; an expression's is a pending d(...) (chain rule)
+        return E.Differential(target) if type(target) is E.Symbol else E.D(target)
+    if t is E.Identity:
+        d = _map_dim(r.args[0], b)
+        if d is None:
+            raise _Unbound("dim")
+        return E.Identity(d)
+    if t in (E.Ones, E.Zero):
+        shape = tuple(None if d is None else _map_dim(d, b) for d in r.shape)
+        if any(d is None and pd is not None for d, pd in zip(shape, r.shape)):
+            raise _Unbound("dim")
+        return t(shape)
+    if t is E.Commutation:
+        m, n = _map_dim(r.args[0], b), _map_dim(r.args[1], b)
+        if m is None or n is None:
+            raise _Unbound("dim")
+        return E.Commutation(m, n)
+    if not r.children:
+        return r
+    return E.rebuild_smart(r, [_build(c, b) for c in r.children])
+
+
+# ---------------------------------------------------------------------------------------------
+# the public function
+# ---------------------------------------------------------------------------------------------
+
+
+def _as_expr(expression_or_block, shapes):
+    from ..language import parse_block
+
+    x = expression_or_block
+    if isinstance(x, E.Expr):
+        return x
+    if hasattr(x, "expr") and isinstance(x.expr, E.Expr):
+        return x.expr
+    if hasattr(x, "text") and isinstance(x.text, str):
+        x = x.text
+    if not isinstance(x, str):
+        raise TypeError(
+            f"applicable() takes a formula text, a parsed block or an expression, got "
+            f"{type(x).__name__}"
+        )
+    return parse_block(x, shapes=shapes).expr
+
+
+def _subsets(kind_args, size):
+    combos = itertools.combinations(range(len(kind_args)), size)
+    return itertools.islice(combos, _MAX_SUBSETS)
+
+
+def _candidates(pattern: _Pattern, node: E.Expr):
+    """(matched expression, bindings, rebuild(replacement) -> new node) for one target node."""
+    p = pattern.lhs
+    tp = type(p)
+    if tp in (E.Add, E.Mul) and type(node) is tp and len(node.args) > len(p.args):
+        for chosen in _subsets(node.args, len(p.args)):
+            part = [node.args[i] for i in chosen]
+            rest = [a for i, a in enumerate(node.args) if i not in chosen]
+            try:
+                matched = _combine(tp, part)
+            except Exception:  # noqa: BLE001
+                continue
+            for b in _match_commutative(p.args, tuple(part), _Bindings(), tp):
+
+                def rebuild(repl, rest=rest):
+                    return _combine(tp, [*rest, repl])
+
+                yield matched, b, rebuild
+    if tp is E.MatMul and type(node) is E.MatMul and len(node.args) > len(p.args):
+        n = len(node.args)
+        for s in range(n):
+            for e in range(s + len(p.args), n + 1):
+                if e - s == n:
+                    continue
+                part = node.args[s:e]
+                for b in _match_chain(p.args, part, 0, 0, _Bindings()):
+
+                    def rebuild(repl, s=s, e=e):
+                        return E.matmul(*node.args[:s], repl, *node.args[e:])
+
+                    yield E.matmul(*part), b, rebuild
+    for b in _match(p, node, _Bindings()):
+        yield node, b, lambda repl: repl
+
+
+def applicable(expression_or_block, *, shapes=None, limit=None, verify=True) -> list[Match]:
+    """Identities whose one side matches a subexpression of the expression, with the rewrite.
+
+    `expression_or_block` is formula text (a block, or one expression with `shapes`), a parsed
+    `Block`, a `Derivation` or an `Expr`. Equalities are tried in both directions; differential
+    and derivative records report the differential or gradient of what they match. With
+    `verify`, every rewrite is evaluated against the original at random values and dropped if
+    they differ (a safety net; the matcher should never need it).
+
+    >>> ms = applicable("A: (m, n)\\nX: (n, p)\\nB: (p, q)\\nf = vec(A @ X @ B)")
+    >>> [m.text for m in ms if m.identity.id == "vec-triple-product"]
+    ['kron(B.T, A) @ vec(X)']
+    """
+    root = _as_expr(expression_or_block, shapes)
+    present = _node_types(root)
+    # a definition is matched through its body, once
+    nodes = [n for n in E.walk(root) if n.children and type(n) is not E.Named]
+    out: list[Match] = []
+    seen: set = set()
+    for pattern in compiled_patterns():
+        if not pattern.node_types <= present:
+            continue
+        for node in nodes:
+            if type(pattern.lhs) is not type(node):
+                continue
+            found = 0
+            for matched, b, rebuild in _candidates(pattern, node):
+                if found >= _MAX_MATCHES_PER_NODE:
+                    break
+                match = _make_match(pattern, root, node, matched, b, rebuild)
+                if match is None:
+                    continue
+                key = (
+                    pattern.identity.id,
+                    match.is_rewrite,
+                    match.matched,
+                    match.rewritten if match.is_rewrite else None,
+                )
+                if key in seen:
+                    continue
+                if verify and not _verified(match, root):
+                    continue
+                seen.add(key)
+                out.append(match)
+                found += 1
+    rank = {"forward": 0, "backward": 1, "differential": 2, "gradient": 3}
+    out.sort(key=lambda m: (rank[m.direction], -_size(m.matched)))
+    return out[:limit] if limit else out
+
+
+def _size(e: E.Expr) -> int:
+    return sum(1 for _ in E.walk(e))
+
+
+def _make_match(pattern, root, node, matched, b, rebuild):
+    try:
+        replacement = _build(pattern.rhs, b)
+    except (_Unbound, Exception):  # noqa: BLE001 - a replacement that cannot be built is no match
+        return None
+    if pattern.direction == "gradient":
+        target = b.vars.get(pattern.wrt)
+        if type(target) is not E.Symbol:
+            return None
+        # the record's other symbols are constants: they must not depend on the variable
+        if any(target.name in v.symbols for k, v in b.vars.items() if k != pattern.wrt):
+            return None
+        return Match(
+            pattern.identity, "gradient", matched, replacement, replacement, b.vars, target.name
+        )
+    if pattern.direction == "differential":
+        if not replacement.has_differential:
+            return None
+        varying = {n.symbol.name for n in E.walk(pattern.rhs) if type(n) is E.Differential}
+        moved = frozenset().union(*(b.vars[n].symbols for n in varying))
+        if not all(b.vars[n].symbols for n in varying):
+            return None  # d of a constant is no differential worth showing
+        if any(moved & v.symbols for k, v in b.vars.items() if k not in varying):
+            return None
+        return Match(pattern.identity, "differential", matched, replacement, replacement, b.vars)
+    if replacement == matched:
+        return None
+    try:
+        new_node = rebuild(replacement)
+        rewritten = new_node if node is root else E.substitute(root, {node: new_node})
+        if _text(rewritten) == _text(root):
+            # the change sits inside a definition: show the expression with definitions inlined
+            rewritten = E.substitute(
+                E.inline_named(root), {E.inline_named(node): E.inline_named(new_node)}
+            )
+    except Exception:  # noqa: BLE001
+        return None
+    if rewritten == root:
+        return None
+    return Match(pattern.identity, pattern.direction, matched, replacement, rewritten, b.vars)
+
+
+# ---------------------------------------------------------------------------------------------
+# the numeric safety net
+# ---------------------------------------------------------------------------------------------
+
+
+def _symbols(e: E.Expr) -> dict:
+    out = {}
+    for n in E.walk(e):
+        if type(n) is E.Symbol:
+            out[n.name] = n
+        elif type(n) is E.Differential:
+            out[n.symbol.name] = n.symbol
+    return out
+
+
+def _sample(e: E.Expr, seed: int):
+    from ..sampling import default_sizes, needs_positive, sample_symbol
+
+    symbols = _symbols(e)
+    dims = []
+    for s in symbols.values():
+        for d in s.shape:
+            if d is not None:
+                for name in d.names:
+                    if name not in dims:
+                        dims.append(name)
+    sizes = default_sizes(dims)
+    positive = needs_positive(E.inline_named(e))
+    rng = np.random.default_rng(seed)
+    arrays = {
+        name: sample_symbol(s, sizes, rng, positive=name in positive) for name, s in symbols.items()
+    }
+    return arrays, sizes, rng
+
+
+def _close(a, b) -> bool:
+    a, b = np.asarray(a, dtype=float), np.asarray(b, dtype=float)
+    if a.shape != b.shape:
+        return False
+    scale = max(1.0, float(np.max(np.abs(a), initial=0.0)))
+    return bool(np.allclose(a, b, rtol=1e-6, atol=1e-8 * scale))
+
+
+def _verified(match: Match, root: E.Expr) -> bool:
+    from ..evaluate import evaluate
+
+    try:
+        with np.errstate(all="ignore"):
+            arrays, sizes, rng = _sample(root if match.is_rewrite else match.matched, 7)
+            if match.is_rewrite:
+                before = evaluate(root, arrays, dims=sizes)
+                if not np.all(np.isfinite(before)):
+                    return True
+                return _close(before, evaluate(match.rewritten, arrays, dims=sizes))
+            if match.direction == "differential":
+                names = sorted(
+                    frozenset().union(
+                        *(
+                            n.symbols if type(n) is E.D else {n.symbol.name}
+                            for n in E.walk(match.replacement)
+                            if type(n) in (E.D, E.Differential)
+                        )
+                    )
+                )
+            else:
+                names = [match.wrt]
+            dirs = {n: rng.standard_normal(np.shape(arrays[n])) for n in names}
+            for n, s in _symbols(match.matched).items():
+                if n in dirs and np.ndim(arrays[n]) == 2 and E.is_symmetric(s):
+                    dirs[n] = (dirs[n] + dirs[n].T) / 2
+            h = 1e-6
+            plus = {k: v + h * dirs[k] if k in dirs else v for k, v in arrays.items()}
+            minus = {k: v - h * dirs[k] if k in dirs else v for k, v in arrays.items()}
+            fd = (
+                np.asarray(evaluate(match.matched, plus, dims=sizes))
+                - np.asarray(evaluate(match.matched, minus, dims=sizes))
+            ) / (2 * h)
+            if not np.all(np.isfinite(fd)):
+                return True
+            if match.direction == "differential":
+                # each pending d(e) is replaced by a central difference of e along the directions
+                pending = {}
+                extra = {}
+                for k, node in enumerate(n for n in E.walk(match.replacement) if type(n) is E.D):
+                    name = f"_gw_pending_{k}"
+                    body = node.args[0]
+                    pending[node] = E.Symbol(name, body.shape)
+                    extra[name] = (
+                        np.asarray(evaluate(body, plus, dims=sizes))
+                        - np.asarray(evaluate(body, minus, dims=sizes))
+                    ) / (2 * h)
+                replacement = (
+                    E.substitute(match.replacement, pending) if pending else match.replacement
+                )
+                full_dirs = {**dirs}
+                for n in E.walk(replacement):
+                    if type(n) is E.Differential and n.symbol.name not in full_dirs:
+                        full_dirs[n.symbol.name] = np.zeros_like(np.asarray(arrays[n.symbol.name]))
+                analytic = evaluate(
+                    replacement, {**arrays, **extra}, differentials=full_dirs, dims=sizes
+                )
+            else:
+                g = np.asarray(evaluate(match.replacement, arrays, dims=sizes))
+                analytic = float(np.sum(g * dirs[match.wrt]))
+            a = np.asarray(analytic, dtype=float)
+            return a.shape == fd.shape and bool(np.allclose(fd, a, rtol=1e-4, atol=1e-6))
+    except Exception:  # noqa: BLE001 - what cannot be evaluated is not offered
+        return False
