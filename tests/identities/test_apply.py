@@ -303,3 +303,49 @@ def test_no_duplicate_matches():
         matches = applicable(block)
         keys = [(m.identity.id, m.matched_text, m.text) for m in matches]
         assert len(keys) == len(set(keys)), block
+
+
+# ---------------------------------------------------------------------------------------------
+# the whole catalogue applied to its own sides
+# ---------------------------------------------------------------------------------------------
+
+
+def _own_blocks():
+    from gradwright.identities import all as all_identities
+
+    for ident in all_identities():
+        if ident.kind == "differential":
+            inner = ident.lhs.strip()[2:-1]
+            yield ident, "differential", "\n".join([*ident.declarations, f"f = {inner}"])
+        elif ident.kind == "derivative":
+            yield ident, "gradient", ident.block("lhs")
+        else:
+            yield ident, "forward", ident.block("lhs")
+            yield ident, "backward", ident.block("rhs")
+
+
+OWN = list(_own_blocks())
+
+
+@pytest.mark.parametrize("ident, direction, block", OWN, ids=[f"{i.id}-{d}" for i, d, _ in OWN])
+def test_each_identity_applies_to_its_own_side_and_keeps_the_value(ident, direction, block):
+    from gradwright.identities.apply import compiled_patterns
+
+    offered = {(p.identity.id, p.direction) for p in compiled_patterns()}
+    matches = applicable(block, verify=False)
+    if (ident.id, direction) in offered:
+        # a symmetric identity (trace(A @ B) = trace(B @ A)) may be found in the other direction
+        assert any(m.identity.id == ident.id for m in matches)
+    root = parse_block(block).expr
+    arrays, sizes, _ = sample(root, 0)
+    original = evaluate(root, arrays, dims=sizes)
+    for m in matches:
+        if m.is_rewrite:
+            assert close(original, evaluate(m.rewritten, arrays, dims=sizes), rtol=1e-6), m.summary
+
+
+def test_most_identities_are_offered_as_rewrites():
+    from gradwright.identities.apply import compiled_patterns
+
+    offered = {p.identity.id for p in compiled_patterns()}
+    assert len(offered) >= 150
