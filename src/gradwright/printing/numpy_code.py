@@ -222,8 +222,9 @@ class CostModel:
 
 def guess_sizes(e: E.Expr, hints: dict | None = None) -> dict:
     """Dims that only ever appear as contracted inner dims of products (ranks, feature counts)
-    are guessed small; every other named dim large. User hints override (common practice:
-    low-rank factors and feature counts are much smaller than the data dims)."""
+    are guessed small, the inner dim of a Gram product A.T @ A (observations) large, every
+    other named dim in between. User hints override (common practice: low-rank factors are much
+    smaller than the data dims, and samples outnumber features)."""
     outer, inner = set(), set()
     for node in E.walk(e):
         for d in node.shape:
@@ -240,10 +241,16 @@ def guess_sizes(e: E.Expr, hints: dict | None = None) -> dict:
             for d in node.shape:
                 if d is not None:
                     result_dims.update(d.names)
+    gram = set()  # the inner dim of A.T @ A counts observations: usually the largest
+    for node in E.walk(e):
+        if type(node) is E.MatMul:
+            for a, b in zip(node.args, node.args[1:]):
+                if a == E.transpose(b) and a.shape[1] is not None:
+                    gram.update(a.shape[1].names)
     sizes = {}
     for name in outer | inner:
         small = name in inner and not _appears_as_result(e, name)
-        sizes[name] = 30.0 if small else 1000.0
+        sizes[name] = 10000.0 if name in gram else 30.0 if small else 1000.0
     sizes.update({k: float(v) for k, v in (hints or {}).items()})
     return sizes
 
@@ -506,6 +513,10 @@ class NumpyPrinter(TextPrinter):
 
     def _print_Sum(self, e):
         a = e.args[0]
+        if type(a) is E.Power and a.args[1] == E.Const(2) and self.gen.temps.get(a) is None:
+            x = self._print(a.args[0])
+            sub = "ij,ij->" if E.is_matrix_shape(a.shape) else "i,i->"
+            return f'np.einsum("{sub}", {x}, {x})'  # no temporary for the squares
         if type(a) is E.Mul and len(a.array_factors) == 2 and not a.scalar_factors:
             x, y = a.args
             if not any(type(f) is E.Power and type(f.args[1]) is E.Const and f.args[1].value < 0
