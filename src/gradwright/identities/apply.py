@@ -507,7 +507,7 @@ def _as_expr(expression_or_block, shapes):
             f"applicable() takes a formula text, a parsed block or an expression, got "
             f"{type(x).__name__}"
         )
-    return parse_block(x, shapes=shapes).expr
+    return parse_block(x, shapes=shapes, allow_differentials=True).expr
 
 
 def _subsets(kind_args, size):

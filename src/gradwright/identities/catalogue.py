@@ -2594,7 +2594,7 @@ RECORDS = [
         "kind": "derivative",
     },
     {
-        "id": "gradient-of-gaussian-negative-log-likelihood",
+        "id": "gradient-of-logdet-plus-inverse-trace",
         "title": "derivative of logdet(X) + tr(X^-1 A) in an unstructured matrix",
         "tags": (
             "derivative",
@@ -2764,7 +2764,7 @@ RECORDS = [
         "kind": "derivative",
     },
     {
-        "id": "gradient-of-trace-xtax-in-vector-form",
+        "id": "gradient-of-kronecker-quadratic-form",
         "title": "gradient of a Kronecker-weighted quadratic form in vec(X)",
         "tags": ("derivative", "gradient", "vec", "kronecker", "quadratic", "form"),
         "declarations": ("A: (m, m) symmetric", "B: (n, n) symmetric", "X: (m, n)"),

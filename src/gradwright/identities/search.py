@@ -388,6 +388,8 @@ def _tag_filter(identities: list[Identity], wanted) -> list[int]:
 
 def search_with_scores(text: str, *, tags=None, limit: int = 10) -> list[tuple[Identity, float]]:
     """Like `search`, with each identity's score (higher is better)."""
+    if not isinstance(text, str):
+        raise TypeError(f"search() takes the words to look for as text, got {type(text).__name__}")
     index = _index()
     allowed = _tag_filter(index.identities, tags)
     if not text.strip():
