@@ -113,49 +113,55 @@ def test_every_rewrite_evaluates_equal_to_the_original(block):
             ), m.summary
 
 
+def differential_or_gradient_agrees(m, arrays, sizes, rng, h=1e-6):
+    """A differential match against a central difference of the matched piece along random
+    directions (each pending d(e) replaced by the difference of e); a gradient match by the
+    directional derivative tr(G^T E)."""
+    if m.direction == "gradient":
+        moving = {m.wrt}
+    else:
+        moving = set()
+        for n in E.walk(m.replacement):
+            if type(n) is E.Differential:
+                moving.add(n.symbol.name)
+            elif type(n) is E.D:
+                moving |= n.args[0].symbols
+    dirs = {n: rng.standard_normal(np.shape(arrays[n])) for n in moving}
+    plus = {k: v + h * dirs[k] if k in dirs else v for k, v in arrays.items()}
+    minus = {k: v - h * dirs[k] if k in dirs else v for k, v in arrays.items()}
+
+    def fd(e):
+        return (
+            np.asarray(evaluate(e, plus, dims=sizes)) - np.asarray(evaluate(e, minus, dims=sizes))
+        ) / (2 * h)
+
+    numeric = fd(m.matched)
+    if m.direction == "gradient":
+        analytic = np.sum(np.asarray(evaluate(m.replacement, arrays, dims=sizes)) * dirs[m.wrt])
+    else:
+        pending = {}
+        extra = {}
+        for i, node in enumerate(n for n in E.walk(m.replacement) if type(n) is E.D):
+            name = f"_pending_{i}"
+            pending[node] = E.Symbol(name, node.args[0].shape)
+            extra[name] = fd(node.args[0])
+        replacement = E.substitute(m.replacement, pending)
+        full = dict(dirs)
+        for n in E.walk(replacement):
+            if type(n) is E.Differential:
+                full.setdefault(n.symbol.name, np.zeros(np.shape(arrays[n.symbol.name])))
+        analytic = evaluate(replacement, {**arrays, **extra}, differentials=full, dims=sizes)
+    return close(numeric, analytic, rtol=1e-5)
+
+
 @pytest.mark.parametrize("block", GALLERY, ids=lambda b: b.splitlines()[-1])
 def test_every_differential_and_gradient_match_agrees_with_finite_differences(block):
     root = parse_block(block).expr
     matches = [m for m in applicable(block, verify=False) if not m.is_rewrite]
+    assert matches
     arrays, sizes, rng = sample(root, 3)
-    h = 1e-6
     for m in matches:
-        if m.direction == "gradient":
-            moving = {m.wrt}
-        else:
-            moving = set()
-            for n in E.walk(m.replacement):
-                if type(n) is E.Differential:
-                    moving.add(n.symbol.name)
-                elif type(n) is E.D:
-                    moving |= n.args[0].symbols
-        dirs = {n: rng.standard_normal(np.shape(arrays[n])) for n in moving}
-        plus = {k: v + h * dirs[k] if k in dirs else v for k, v in arrays.items()}
-        minus = {k: v - h * dirs[k] if k in dirs else v for k, v in arrays.items()}
-
-        def fd(e, plus=plus, minus=minus):
-            return (
-                np.asarray(evaluate(e, plus, dims=sizes))
-                - np.asarray(evaluate(e, minus, dims=sizes))
-            ) / (2 * h)
-
-        numeric = fd(m.matched)
-        if m.direction == "gradient":
-            analytic = np.sum(np.asarray(evaluate(m.replacement, arrays, dims=sizes)) * dirs[m.wrt])
-        else:
-            pending = {}
-            extra = {}
-            for i, node in enumerate(n for n in E.walk(m.replacement) if type(n) is E.D):
-                name = f"_pending_{i}"
-                pending[node] = E.Symbol(name, node.args[0].shape)
-                extra[name] = fd(node.args[0])
-            replacement = E.substitute(m.replacement, pending)
-            full = dict(dirs)
-            for n in E.walk(replacement):
-                if type(n) is E.Differential:
-                    full.setdefault(n.symbol.name, np.zeros(np.shape(arrays[n.symbol.name])))
-            analytic = evaluate(replacement, {**arrays, **extra}, differentials=full, dims=sizes)
-        assert close(numeric, analytic, rtol=1e-5), m.summary
+        assert differential_or_gradient_agrees(m, arrays, sizes, rng), m.summary
 
 
 # ---------------------------------------------------------------------------------------------

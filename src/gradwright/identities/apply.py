@@ -247,10 +247,27 @@ def _is_positive(e) -> bool:
     return False
 
 
+def _known_singular(t) -> bool:
+    """True for square expressions that are singular whatever the values (rank one, zero)."""
+    t = t.body if type(t) is E.Named else t
+    if type(t) is E.Zero:
+        return True
+    if type(t) is E.Ones:
+        return t.shape[0] != E.Dim((), 1)
+    if type(t) is E.MatMul:
+        # a chain through a unit axis (x y^T, A x y^T B) has rank at most one
+        return any(f.shape[1] is None for f in t.args[:-1])
+    if type(t) is E.Mul:
+        return any(type(f) is E.Zero for f in t.args)
+    return False
+
+
 def _structure_ok(words, t) -> bool:
     for word in words:
         if word in ("square", "invertible"):
             if not (E.is_matrix_shape(t.shape) and t.shape[0] == t.shape[1]):
+                return False
+            if word == "invertible" and _known_singular(t):
                 return False
         elif word == "symmetric":
             if not E.is_symmetric(t):
@@ -666,10 +683,13 @@ def _sample(e: E.Expr, seed: int):
 
     symbols = _symbols(e)
     dims = []
-    for s in symbols.values():
-        for d in s.shape:
-            if d is not None:
-                for name in d.names:
+    for node in E.walk(e):
+        shapes = [node.shape]
+        if type(node) is E.Commutation:
+            shapes.append(tuple(node.args))
+        for shape in shapes:
+            for d in shape:
+                for name in () if d is None else d.names:
                     if name not in dims:
                         dims.append(name)
     sizes = default_sizes(dims)
