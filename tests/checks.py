@@ -1,0 +1,288 @@
+"""The one shared numeric check utility of the test suite.
+
+Random points that honor shapes and structure words, column-major vec, error measures, a
+central-difference check along random directions that reports both numbers, the JAX
+reference (gradients, Jacobians, JVP/VJP, Hessians), and a combinator that runs one check
+over scalar, vector and matrix shapes.
+"""
+
+from __future__ import annotations
+
+import functools
+import os
+
+import numpy as np
+
+# every reference derivative in the suite comes from JAX in float64 (reference library: JAX)
+os.environ.setdefault("JAX_PLATFORMS", "cpu")
+import jax  # noqa: E402
+
+jax.config.update("jax_enable_x64", True)
+import jax.numpy as jnp  # noqa: E402
+
+__all__ = [
+    "SHAPES",
+    "DEFAULT_SIZES",
+    "assert_close",
+    "central_difference_check",
+    "dim_size",
+    "jax_grad",
+    "jax_hessian",
+    "jax_jacobian",
+    "jax_jvp",
+    "jax_vjp",
+    "jnp",
+    "jax",
+    "over_shapes",
+    "project",
+    "random_direction",
+    "random_point",
+    "rel_err",
+    "symbol_shape",
+    "unvec",
+    "vec",
+]
+
+#: distinct small sizes, so that a transposed dim shows up as a wrong shape
+DEFAULT_SIZES = {"n": 3, "k": 4, "p": 2, "m": 5, "q": 3, "h": 4, "d": 3, "o": 2, "r": 2, "s": 4}
+
+#: the three kinds of variable a check is run over (`over_shapes`)
+SHAPES = {"scalar": "()", "vector": "(n,)", "matrix": "(n, k)"}
+
+
+# --- sizes and random points --------------------------------------------------------------------
+
+
+def dim_size(dim, sizes: dict) -> int:
+    """An int dim, a name, or a product text like 'm*p' -> its size."""
+    if isinstance(dim, int):
+        return dim
+    out = 1
+    for part in str(dim).split("*"):
+        part = part.strip()
+        out *= int(part) if part.isdigit() else sizes[part]
+    return out
+
+
+def symbol_shape(info, sizes: dict) -> tuple:
+    """The NumPy shape of a `SymbolInfo` at the given sizes."""
+    return tuple(dim_size(d, sizes) for d in info.shape)
+
+
+def _sizes_for(derivation, sizes: dict | None) -> dict:
+    out = dict(DEFAULT_SIZES)
+    extra = 6
+    for name in derivation.dims:
+        if name not in out:
+            out[name] = extra % 4 + 2
+            extra += 1
+    out.update(sizes or {})
+    return out
+
+
+def _sample(shape, structure, rng, positive=False):
+    words = set(structure)
+    if len(shape) == 2 and words & {"spd", "symmetric", "diagonal", "orthogonal", "invertible"}:
+        n = shape[0]
+        if "spd" in words:
+            a = rng.standard_normal((n, n))
+            return a @ a.T / n + np.eye(n)
+        if "diagonal" in words:
+            v = rng.uniform(0.5, 2.0, n)
+            if "positive" not in words and not positive:
+                v = v * rng.choice([-1.0, 1.0], n)
+            return np.diag(v)
+        if "symmetric" in words:
+            a = rng.standard_normal((n, n))
+            out = (a + a.T) / 2
+            return np.abs(out) + 0.5 if ("positive" in words or positive) else out
+        if "orthogonal" in words:
+            q, r = np.linalg.qr(rng.standard_normal((n, n)))
+            return q * np.sign(np.diag(r))
+        return rng.standard_normal((n, n)) + 2 * np.sqrt(n) * np.eye(n)
+    if "positive" in words or positive:
+        out = rng.uniform(0.5, 2.0, shape)
+    else:
+        out = rng.standard_normal(shape)
+    return float(out) if shape == () else out
+
+
+def random_point(derivation, seed: int = 0, sizes: dict | None = None, positive=()) -> dict:
+    """Random float64 arrays for every declared symbol, honoring its shape and structure.
+
+    Independent of the engine's own sampler. Symbols in `positive` are drawn in [0.5, 2].
+    """
+    rng = np.random.default_rng(seed)
+    sz = _sizes_for(derivation, sizes)
+    out = {}
+    for name, info in derivation.symbols.items():
+        if info.role in ("defined", "target"):
+            continue
+        out[name] = _sample(symbol_shape(info, sz), info.structure, rng, name in positive)
+    return out
+
+
+def random_direction(info, value, rng):
+    """A random direction in the space the symbol lives in (symmetric, diagonal, plain)."""
+    shape = np.shape(value)
+    if shape == ():
+        return float(rng.standard_normal())
+    v = rng.standard_normal(shape)
+    return project(v, info.structure)
+
+
+def project(g, structure):
+    """The symmetric part (symmetric/spd) or the diagonal part (diagonal) of a matrix."""
+    g = np.asarray(g)
+    if g.ndim != 2:
+        return g
+    words = set(structure)
+    if "diagonal" in words:
+        return np.diag(np.diag(g))
+    if words & {"symmetric", "spd"}:
+        return (g + g.T) / 2
+    return g
+
+
+# --- vec and error measures ---------------------------------------------------------------------
+
+
+def vec(a) -> np.ndarray:
+    """Column-major vec of a scalar, vector or matrix."""
+    return np.reshape(np.asarray(a), -1, order="F")
+
+
+def unvec(v, shape) -> np.ndarray:
+    v = np.asarray(v)
+    if shape == ():
+        return v.reshape(())[()]
+    return v.reshape(shape, order="F")
+
+
+def rel_err(got, want) -> float:
+    """||got - want|| / ||want|| (Frobenius), with ||want|| floored at 1e-12."""
+    got = np.asarray(got, dtype=float)
+    want = np.asarray(want, dtype=float)
+    if got.shape != want.shape:
+        raise AssertionError(f"shape {got.shape} != reference shape {want.shape}")
+    return float(np.linalg.norm(got - want) / max(np.linalg.norm(want), 1e-12))
+
+
+def assert_close(got, want, rtol=1e-8, what="value"):
+    err = rel_err(got, want)
+    assert err <= rtol, (
+        f"{what}: relative error {err:.2e} > {rtol:.0e}\n got  {np.asarray(got)!r}\n"
+        f" want {np.asarray(want)!r}"
+    )
+
+
+def central_difference_check(f, x, analytic_grad, *, n_dirs=3, seed=0, h=None, structure=()):
+    """Compare <grad, v> with (f(x + h v) - f(x - h v)) / 2h along random directions v.
+
+    Returns a list of (finite_difference, analytic) pairs, both numbers, one per direction.
+    The step is h ≈ ε^(1/3)·scale (Nocedal and Wright, Numerical Optimization, 2nd ed., §8.1).
+    """
+    rng = np.random.default_rng(seed)
+    x = np.asarray(x, dtype=float)
+    g = np.asarray(analytic_grad, dtype=float)
+    scale = max(1.0, float(np.max(np.abs(x)))) if x.size else 1.0
+    h = h if h is not None else np.finfo(float).eps ** (1 / 3) * scale
+    out = []
+    for _ in range(n_dirs):
+        v = project(rng.standard_normal(x.shape), structure)
+        fd = (f(x + h * v) - f(x - h * v)) / (2 * h)
+        out.append((float(fd), float(np.sum(g * v))))
+    return out
+
+
+# --- the JAX reference --------------------------------------------------------------------------
+
+
+def _as_jax(arrays: dict) -> dict:
+    return {k: jnp.asarray(v, dtype=jnp.float64) for k, v in arrays.items()}
+
+
+def jax_grad(ref, arrays: dict, variables) -> tuple:
+    """Gradients of the scalar `ref(**arrays)` w.r.t. `variables`, as NumPy arrays, in order."""
+    a = _as_jax(arrays)
+    consts = {k: v for k, v in a.items() if k not in variables}
+
+    def fn(vs):
+        return ref(**consts, **vs)
+
+    g = jax.grad(fn)({v: a[v] for v in variables})
+    return tuple(np.asarray(g[v]) for v in variables)
+
+
+def _vec_function(ref, arrays: dict, var: str):
+    a = _as_jax(arrays)
+    shape = np.shape(arrays[var])
+
+    def fv(x):
+        xs = dict(a)
+        xs[var] = x.reshape(shape, order="F") if shape else x.reshape(())
+        return jnp.ravel(jnp.asarray(ref(**xs)), order="F")
+
+    return fv, jnp.ravel(a[var], order="F")
+
+
+def jax_jacobian(ref, arrays: dict, var: str) -> np.ndarray:
+    """d vec(F) / d vec(X)^T by forward mode on the column-major vec'ed function."""
+    fv, x0 = _vec_function(ref, arrays, var)
+    return np.asarray(jax.jacfwd(fv)(x0))
+
+
+def jax_jvp(ref, arrays: dict, var: str, direction) -> np.ndarray:
+    a = _as_jax(arrays)
+
+    def fn(x):
+        return ref(**{**a, var: x})
+
+    _, t = jax.jvp(fn, (a[var],), (jnp.asarray(direction, dtype=jnp.float64),))
+    return np.asarray(t)
+
+
+def jax_vjp(ref, arrays: dict, var: str, cotangent) -> np.ndarray:
+    a = _as_jax(arrays)
+
+    def fn(x):
+        return ref(**{**a, var: x})
+
+    _, pull = jax.vjp(fn, a[var])
+    return np.asarray(pull(jnp.asarray(cotangent, dtype=jnp.float64))[0])
+
+
+def jax_hessian(ref, arrays: dict, var: str) -> np.ndarray:
+    """The dense Hessian of a scalar `ref` over column-major vec(var)."""
+    fv, x0 = _vec_function(ref, arrays, var)
+    return np.asarray(jax.hessian(lambda x: fv(x)[0])(x0))
+
+
+# --- the combinator -----------------------------------------------------------------------------
+
+
+def over_shapes(template: str, kinds=("scalar", "vector", "matrix")) -> list[tuple[str, str]]:
+    """Instantiate a block template at each kind of variable shape.
+
+    `template` contains `{shape}` where the variable's declared shape goes; returns
+    `[(kind, block), ...]` for `pytest.mark.parametrize`.
+
+    >>> over_shapes("X: {shape}\\nf = sum(exp(X))", kinds=("vector",))
+    [('vector', 'X: (n,)\\nf = sum(exp(X))')]
+    """
+    return [(kind, template.replace("{shape}", SHAPES[kind])) for kind in kinds]
+
+
+def run_over_shapes(check, template: str, kinds=("scalar", "vector", "matrix")):
+    """Run `check(block)` once per shape kind; raises on the first failure, naming the kind."""
+    for kind, block in over_shapes(template, kinds):
+        try:
+            check(block)
+        except AssertionError as err:
+            raise AssertionError(f"[{kind}] {err}") from None
+
+
+@functools.cache
+def _warm() -> bool:  # pragma: no cover - keeps the first JAX call out of timing-sensitive tests
+    jax.grad(lambda x: x * x)(1.0)
+    return True
