@@ -130,3 +130,25 @@ def test_search_returns_identity_objects():
     (hit,) = identities.search("vec ABC", limit=1)
     assert isinstance(hit, identities.Identity)
     assert hit.latex.startswith(r"\operatorname{vec}")
+
+
+@pytest.mark.parametrize(
+    "query, expected",
+    [
+        ("gradient of x^T A x", "gradient-of-quadratic-form"),
+        ("determinant of I + uv^T", "determinant-identity-plus-outer"),
+        ("d/dX a^T X b", "gradient-of-bilinear-form-in-matrix"),
+        ("derivative of X^{-1}", "differential-of-inverse"),
+        ("K_mn vec", "commutation-vec-transpose"),
+        ("normal equations", "gradient-of-least-squares"),
+        ("trace of product of matrices", "trace-cyclic-two"),
+    ],
+)
+def test_math_notation_in_queries(query, expected):
+    ids = [i.id for i in identities.search(query, limit=3)]
+    assert expected in ids, f"{query!r}: got {ids}"
+
+
+def test_search_rejects_non_text():
+    with pytest.raises(TypeError):
+        identities.search(None)

@@ -69,6 +69,7 @@ RECORDS = [
         "latex_rhs": r"\operatorname{tr}(B A)",
         "source": "Petersen & Pedersen, The Matrix Cookbook (Nov. 15, 2012), eq. (14) (from memory)",
         "kind": "equality",
+        "aliases": ("trace of a product", "swap the factors under a trace"),
     },
     {
         "id": "trace-cyclic-three",
@@ -2628,6 +2629,7 @@ RECORDS = [
         "latex_rhs": r"2 A^\top (A x - b)",
         "source": "Petersen & Pedersen, The Matrix Cookbook (Nov. 15, 2012), eq. (84) (from memory); Golub & Van Loan, 4th ed., Sec. 5.3 (from memory)",
         "kind": "derivative",
+        "aliases": ("normal equations", "gradient of a sum of squared residuals"),
     },
     {
         "id": "gradient-of-generalized-least-squares",

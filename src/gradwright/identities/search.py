@@ -23,7 +23,7 @@ __all__ = ["all_identities", "get", "search", "search_with_scores", "tags", "nor
 
 _STOPWORDS = frozenset(
     "a an the of for in on to with and or is as by at its it from into over under how what "
-    "which that this when where are be we i my me your".split()
+    "which that this when where are be we i my me your matrix wrt respect".split()
 )
 
 _IRREGULAR = {
@@ -39,8 +39,18 @@ _IRREGULAR = {
     "complements": "complement",
 }
 
-# phrases read as one word, applied to documents and queries alike
+_T = r"(?:\^\s*\{?\s*t\s*\}?|'|\u1d40)"  # a transpose mark: ^T, ^{T}, ', or the superscript T
+
+# phrases read as one word, applied to documents and queries alike (after lower-casing)
 _PHRASES = (
+    (re.compile(r"\b([a-z])\s*" + _T + r"\s*[a-z]\s*\1\b"), " quadratic form "),
+    (re.compile(r"\b[a-z]\s*" + _T + r"\s*[a-z]\s*[a-z]\b"), " bilinear form "),
+    (re.compile(r"\b[a-z]\s*[a-z]\s*" + _T + r"(?![a-z])"), " outer product "),
+    (re.compile(r"\b[a-z]\s*\^\s*\{?\s*t\s*\}?(?![a-z])"), " transpose "),
+    (re.compile(r"\^\s*\{?\s*-\s*1\s*\}?"), " inverse "),
+    (re.compile(r"\bd\s*/\s*d\s*[a-z]\b"), " derivative "),
+    (re.compile(r"\bk_\{?[a-z0-9,]+\}?"), " commutation "),
+    (re.compile(r"\bw\.r\.t\.?"), " "),
     (re.compile(r"\blog[\s-]*det(erminant)?s?\b"), " logdet "),
     (re.compile(r"\bschur[\s-]+products?\b"), " hadamard "),
     (re.compile(r"\btriple[\s-]+products?\b"), " triple product "),
@@ -139,6 +149,8 @@ def normalize_words(text: str, *, keep_stopwords: bool = False) -> list[str]:
         if not keep_stopwords and raw in _STOPWORDS:
             continue
         word = _stem(raw)
+        if not keep_stopwords and word in _STOPWORDS:
+            continue
         out.append(_CANON.get(word, _CANON.get(raw, word)))
     return out
 
