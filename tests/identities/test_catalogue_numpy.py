@@ -105,3 +105,20 @@ def test_commutation_matrix_convention():
     a = np.arange(6.0).reshape(2, 3)
     vec = a.reshape(-1, order="F")
     assert np.array_equal(commutation_matrix(2, 3) @ vec, a.T.reshape(-1, order="F"))
+
+
+def test_the_independent_evaluator_does_not_use_gradwright():
+    import ast
+    from pathlib import Path
+
+    import numpy_eval
+
+    tree = ast.parse(Path(numpy_eval.__file__).read_text())
+    imported = set()
+    for node in ast.walk(tree):
+        if isinstance(node, ast.Import):
+            imported |= {a.name.split(".")[0] for a in node.names}
+        elif isinstance(node, ast.ImportFrom):
+            imported.add((node.module or "").split(".")[0])
+    assert "gradwright" not in imported
+    assert imported <= {"__future__", "ast", "re", "numpy"}
