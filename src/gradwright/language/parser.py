@@ -19,13 +19,16 @@ from ..errors import FormulaError, NotSupportedError, ShapeError
 STRUCTURE_WORDS = ("symmetric", "spd", "diagonal", "positive", "orthogonal", "square", "invertible")
 _SQUARE_WORDS = {"symmetric", "spd", "diagonal", "orthogonal", "square", "invertible"}
 
-#: bounds on the work one block may ask for (documented in the README)
+#: bounds on the work one block may ask for (documented in docs/limits.md)
 LIMITS = {
     "block_characters": 200_000,
     "line_characters": 50_000,
     "nesting_depth": 120,
     "expression_nodes": 20_000,
     "lines": 2_000,
+    # exact constants are rationals; 4096 bits is about 1,233 decimal digits, room for any
+    # float literal (1.8e308 needs 1,024 bits) while `9**9**9` is refused before it is computed
+    "constant_bits": 4_096,
 }
 
 FUNCTIONS = {
@@ -37,56 +40,96 @@ FUNCTIONS = {
     **{f: (1, 1) for f in E.ELEMENTWISE},
 }  # fmt: skip
 
-_RESERVED = set(FUNCTIONS) | {"T", "np", "numpy", "scipy", "d"}
+# names the generated module binds at module level (its imports); a symbol of the same name
+# would shadow them inside the generated functions
+_GENERATED_MODULE_NAMES = {"np", "numpy", "scipy", "warnings", "cho_factor", "cho_solve"}
+_RESERVED = set(FUNCTIONS) | {"T", "d"} | _GENERATED_MODULE_NAMES
 
+# each entry is the subject of "... not part of the formula language", with its verb
 _CONSTRUCT_NAMES = {
-    ast.Subscript: "subscripts like A[0]",
-    ast.Lambda: "lambda expressions",
-    ast.ListComp: "list comprehensions",
-    ast.SetComp: "set comprehensions",
-    ast.DictComp: "dict comprehensions",
-    ast.GeneratorExp: "generator expressions",
-    ast.Compare: "comparisons",
-    ast.BoolOp: "'and' / 'or'",
-    ast.IfExp: "conditional expressions (x if c else y)",
-    ast.NamedExpr: "the walrus operator :=",
-    ast.JoinedStr: "f-strings",
-    ast.Tuple: "tuples",
-    ast.List: "lists",
-    ast.Dict: "dicts",
-    ast.Set: "sets",
-    ast.Starred: "starred arguments",
-    ast.Await: "await",
-    ast.Yield: "yield",
-    ast.YieldFrom: "yield",
-    ast.Slice: "slices",
+    ast.Subscript: "subscripts like A[0] are",
+    ast.Lambda: "lambda expressions are",
+    ast.ListComp: "list comprehensions are",
+    ast.SetComp: "set comprehensions are",
+    ast.DictComp: "dict comprehensions are",
+    ast.GeneratorExp: "generator expressions are",
+    ast.Compare: "comparisons (==, <, in, is, ...) are",
+    ast.BoolOp: "'and' / 'or' are",
+    ast.IfExp: "conditional expressions (x if c else y) are",
+    ast.NamedExpr: "the walrus operator := is",
+    ast.JoinedStr: "f-strings are",
+    ast.FormattedValue: "f-strings are",
+    ast.Tuple: "tuples are",
+    ast.List: "lists are",
+    ast.Dict: "dicts are",
+    ast.Set: "sets are",
+    ast.Starred: "starred arguments are",
+    ast.Await: "'await' is",
+    ast.Yield: "'yield' is",
+    ast.YieldFrom: "'yield' is",
+    ast.Slice: "slices are",
+}
+
+_LITERAL_NAMES = {
+    str: "strings are",
+    bytes: "bytes are",
+    type(None): "None is",
+    bool: "booleans (True, False) are",
+    complex: "complex numbers are",
+    type(...): "the ellipsis ... is",
 }
 
 _STATEMENT_NAMES = {
-    ast.Import: "imports",
-    ast.ImportFrom: "imports",
-    ast.FunctionDef: "function definitions",
-    ast.AsyncFunctionDef: "function definitions",
-    ast.ClassDef: "class definitions",
-    ast.For: "loops",
-    ast.AsyncFor: "loops",
-    ast.While: "loops",
-    ast.If: "if statements",
-    ast.With: "with statements",
-    ast.AsyncWith: "with statements",
-    ast.Try: "try statements",
-    ast.Raise: "raise",
-    ast.Return: "return",
-    ast.Delete: "del",
-    ast.Global: "global",
-    ast.Nonlocal: "nonlocal",
-    ast.Pass: "pass",
-    ast.Break: "break",
-    ast.Continue: "continue",
-    ast.AugAssign: "augmented assignments like x += 1",
-    ast.AnnAssign: "annotated assignments",
-    ast.Assert: "assert",
+    ast.Import: "imports are",
+    ast.ImportFrom: "imports are",
+    ast.FunctionDef: "function definitions are",
+    ast.AsyncFunctionDef: "function definitions are",
+    ast.ClassDef: "class definitions are",
+    ast.For: "loops are",
+    ast.AsyncFor: "loops are",
+    ast.While: "loops are",
+    ast.If: "if statements are",
+    ast.With: "with statements are",
+    ast.AsyncWith: "with statements are",
+    ast.Try: "try statements are",
+    ast.Raise: "'raise' is",
+    ast.Return: "'return' is",
+    ast.Delete: "'del' is",
+    ast.Global: "'global' is",
+    ast.Nonlocal: "'nonlocal' is",
+    ast.Pass: "'pass' is",
+    ast.Break: "'break' is",
+    ast.Continue: "'continue' is",
+    ast.AugAssign: "augmented assignments like x += 1 are",
+    ast.AnnAssign: "annotated assignments are",
+    ast.Assert: "'assert' is",
 }
+if hasattr(ast, "TryStar"):  # Python 3.11+
+    _STATEMENT_NAMES[ast.TryStar] = "try statements are"
+if hasattr(ast, "Match"):  # Python 3.10+
+    _STATEMENT_NAMES[ast.Match] = "match statements are"
+
+# Python keywords that open a compound statement (Python language reference, "Compound
+# statements"), plus the soft keywords `match`/`case` and the decorator sign; a line starting
+# with one of them is a statement of Python, not of the formula language
+_COMPOUND_OPENERS = {
+    "def": "function definitions are",
+    "async": "function definitions are",
+    "class": "class definitions are",
+    "for": "loops are",
+    "while": "loops are",
+    "with": "with statements are",
+    "if": "if statements are",
+    "elif": "if statements are",
+    "else": "if statements are",
+    "try": "try statements are",
+    "except": "try statements are",
+    "finally": "try statements are",
+    "match": "match statements are",
+    "case": "match statements are",
+    "@": "decorators are",
+}
+_OPENER_RE = re.compile(r"^\s*(@|[A-Za-z]+\b)")
 
 _BINOP_NAMES = {
     ast.FloorDiv: "//",
@@ -98,7 +141,16 @@ _BINOP_NAMES = {
     ast.BitAnd: "&",
 }
 
-_DECL_RE = re.compile(r"^\s*([A-Za-z_][A-Za-z0-9_]*)\s*:(?!=)(.*)$", re.S)
+# a declaration `NAME: ...`; the name may be any identifier so that non-ASCII names get a
+# clear refusal rather than being read as a Python annotation
+_DECL_RE = re.compile(r"^\s*([^\W\d]\w*)\s*:(?!=)(.*)$", re.S)
+# characters that cannot be encoded as UTF-8 text (NUL, lone surrogates)
+_BAD_CHAR_RE = re.compile("[\x00\ud800-\udfff]")
+_ASSIGN_RE = re.compile(r"^\s*([^\W\d]\w*)\s*=(?!=)")
+
+
+def _not_in_language(subject: str) -> str:
+    return f"{subject} not part of the formula language"
 
 
 @dataclass
@@ -155,11 +207,15 @@ class _Reader:
         self.block = Block(text=text)
         self.env: dict[str, E.Expr] = {}
         self.nodes = 0
+        self.source_lines: list[str] = []
+        self.base = 1
 
     # --- errors ------------------------------------------------------------------------------
 
     def fail(self, reason, lineno=None, col=0, width=1, cls=FormulaError):
-        line = self.source_lines[lineno - 1] if lineno and lineno <= len(self.source_lines) else None
+        line = (
+            self.source_lines[lineno - 1] if lineno and lineno <= len(self.source_lines) else None
+        )
         raise cls(
             reason,
             line=lineno,
@@ -168,15 +224,22 @@ class _Reader:
             width=width,
         )
 
-    def fail_node(self, reason, node, cls=FormulaError):
+    def fail_node(self, reason, node, cls=FormulaError, width=None):
         lineno = self.base + node.lineno - 1
         src = self.source_lines[lineno - 1]
         col = _char_col(src, node.col_offset)
-        if getattr(node, "end_lineno", None) == node.lineno and node.end_col_offset is not None:
+        if width is not None:
+            pass
+        elif getattr(node, "end_lineno", None) == node.lineno and node.end_col_offset is not None:
             width = _char_col(src, node.end_col_offset) - col
         else:
             width = len(src) - col
         self.fail(reason, lineno, col, max(1, width), cls)
+
+    def fail_at(self, reason, node, start: int, width: int, cls=FormulaError):
+        """A caret at character `start` (0-based) of the line where `node` starts."""
+        lineno = self.base + node.lineno - 1
+        self.fail(reason, lineno, start, max(1, width), cls)
 
     # --- the block ---------------------------------------------------------------------------
 
@@ -187,9 +250,22 @@ class _Reader:
                 f"the block is {len(text):,} characters long; the limit is "
                 f"{LIMITS['block_characters']:,}"
             )
-        if "\x00" in text:
-            raise FormulaError("the block contains a NUL character")
+        # Python reads \r\n and a lone \r as line ends too (language reference, "Physical
+        # lines"); a byte-order mark is what some editors put before the first character
+        text = text.replace("\r\n", "\n").replace("\r", "\n").removeprefix("\ufeff")
         self.source_lines = text.split("\n")
+        for lineno, raw in enumerate(self.source_lines, 1):
+            bad = _BAD_CHAR_RE.search(raw)
+            if bad:
+                shown = raw[: bad.start()] + "?" + raw[bad.end() :]
+                self.source_lines[lineno - 1] = shown
+                what = "a NUL character" if bad.group() == "\x00" else "a lone surrogate"
+                self.fail(
+                    f"the block contains {what} (U+{ord(bad.group()):04X}), which is not text; "
+                    "remove it",
+                    lineno,
+                    bad.start(),
+                )
         if len(self.source_lines) > LIMITS["lines"]:
             raise FormulaError(
                 f"the block has {len(self.source_lines):,} lines; the limit is {LIMITS['lines']:,}"
@@ -238,7 +314,7 @@ class _Reader:
             buf.append(code)
             depth += code.count("(") + code.count("[") + code.count("{")
             depth -= code.count(")") + code.count("]") + code.count("}")
-            if depth <= 0:
+            if depth <= 0 and not code.endswith("\\"):  # a trailing \ continues the line
                 out.append((start, "\n".join(buf)))
                 start, buf, depth = None, [], 0
         if buf:
@@ -249,6 +325,14 @@ class _Reader:
 
     def check_name(self, name, lineno, col, what="symbol"):
         width = len(name)
+        if not name.isascii():
+            self.fail(
+                f"{what} names are written with ASCII letters, digits and '_' ({name!r} is "
+                "not); spell it out, like alpha or mu",
+                lineno,
+                col,
+                width,
+            )
         if name.startswith("_"):
             self.fail(f"names may not start with '_' ({name!r})", lineno, col, width)
         if keyword.iskeyword(name):
@@ -272,6 +356,8 @@ class _Reader:
     def declaration(self, m, lineno, code):
         name = m.group(1)
         col = code.index(name)
+        if name in _COMPOUND_OPENERS and keyword.iskeyword(name):  # `try:`, `else:`
+            self.fail(_not_in_language(_COMPOUND_OPENERS[name]), lineno, col, len(name))
         self.check_name(name, lineno, col)
         if name in self.env:
             where = self.block.lines.get(name)
@@ -314,6 +400,14 @@ class _Reader:
             if not word or re.fullmatch(r"[\s,]+", word):
                 pos += len(word)
                 continue
+            if word.startswith("=") or word.startswith(":"):
+                self.fail(
+                    f"a declaration gives a shape only; define a value on a line of its own, "
+                    f"like {self.block_decl_hint(code)} = ...",
+                    lineno,
+                    pos,
+                    1,
+                )
             if word not in STRUCTURE_WORDS:
                 close = difflib.get_close_matches(word, STRUCTURE_WORDS, n=1)
                 hint = f" (did you mean {close[0]!r}?)" if close else ""
@@ -329,12 +423,17 @@ class _Reader:
             pos += len(word)
         return dims, words
 
+    def block_decl_hint(self, code):
+        m = _DECL_RE.match(code) if code else None
+        return m.group(1) if m else "R"
+
     def shape_tuple(self, shape_text, lineno, col):
         try:
             node = ast.parse(shape_text, mode="eval").body
-        except SyntaxError:
+        except (SyntaxError, RecursionError, MemoryError):
+            shown = shape_text if len(shape_text) <= 40 else shape_text[:37] + "..."
             self.fail(
-                f"cannot read the shape {shape_text!r}: write dims as names or positive integers, "
+                f"cannot read the shape {shown!r}: write dims as names or positive integers, "
                 "like (n, k)",
                 lineno,
                 col,
@@ -346,6 +445,10 @@ class _Reader:
             c = col + _char_col(shape_text, item.col_offset)
             if isinstance(item, ast.Name):
                 self.check_name(item.id, lineno, c, what="dim")
+                if item.id in self.env:
+                    self.fail(
+                        f"{item.id} is a symbol and cannot also be a dim", lineno, c, len(item.id)
+                    )
                 dims.append(item.id)
             elif (
                 isinstance(item, ast.Constant)
@@ -354,14 +457,22 @@ class _Reader:
             ):
                 if item.value <= 0:
                     self.fail(f"dims must be positive, got {item.value}", lineno, c, 1)
+                if item.value.bit_length() > 62:
+                    self.fail("the dim is too large", lineno, c, len(str(item.value)))
                 dims.append(item.value)
             elif isinstance(item, ast.BinOp) and isinstance(item.op, ast.Mult):
                 dims.append(self.product_dim(item, lineno, c, shape_text))
             elif isinstance(item, ast.UnaryOp) and isinstance(item.op, ast.USub):
-                self.fail("dims must be positive", lineno, c, 2)
+                got = ast.get_source_segment(shape_text, item) or "a negative number"
+                self.fail(f"dims must be positive, got {got}", lineno, c, len(got))
             else:
+                got = ast.get_source_segment(shape_text, item) or ""
+                shown = got if len(got) <= 30 else got[:27] + "..."
                 self.fail(
-                    "a dim is a name like n or a positive integer like 3", lineno, c, 1
+                    f"a dim is a name like n or a positive integer like 3, got {shown}",
+                    lineno,
+                    c,
+                    max(1, len(got)) if "\n" not in got else 1,
                 )
         if len(dims) > 2:
             self.fail(
@@ -388,8 +499,9 @@ class _Reader:
             elif isinstance(x, ast.Constant) and type(x.value) is int and x.value > 0:
                 factors.append(x.value)
             else:
-                self.fail("a product dim multiplies names and positive integers, like m*p",
-                          lineno, col, 1)
+                self.fail(
+                    "a product dim multiplies names and positive integers, like m*p", lineno, col, 1
+                )
         d = E.Dim()
         for f in factors:
             d = d * E.Dim.of(f)
@@ -449,9 +561,7 @@ class _Reader:
                     if isinstance(d, str) and not d.isidentifier():
                         raise FormulaError(f"{d!r} is not a valid dim name")
                 if len(dims) > 2:
-                    raise NotSupportedError(
-                        f"not supported yet: arrays with {len(dims)} axes"
-                    )
+                    raise NotSupportedError(f"not supported yet: arrays with {len(dims)} axes")
                 if name in self.env:
                     raise FormulaError(f"{name} is declared twice")
                 self.add_symbol(name, list(dims), words, None, 0)
@@ -483,7 +593,8 @@ class _Reader:
                 where = self.block.lines.get(name)
                 what = "defined" if name in self.block.definitions else "declared"
                 self.fail_node(
-                    f"{name} is already {what}" + (f" on line {where}" if where else "")
+                    f"{name} is already {what}"
+                    + (f" on line {where}" if where else "")
                     + "; choose a new name",
                     target,
                 )
@@ -498,6 +609,19 @@ class _Reader:
             self.block.expr = body
             return "definition"
         if isinstance(stmt, ast.Expr):
+            v = stmt.value
+            if (
+                isinstance(v, ast.Compare)
+                and isinstance(v.left, ast.Name)
+                and len(v.ops) == 1
+                and isinstance(v.ops[0], ast.Eq)
+            ):
+                self.fail_node(
+                    f"a definition uses one '=': write {v.left.id} = ... "
+                    "(== would compare, and comparisons are not part of the formula language)",
+                    v,
+                    width=len(v.left.id),
+                )
             if not is_last:
                 self.fail_node(
                     "a bare expression may only be the last line (the target); "
@@ -514,22 +638,14 @@ class _Reader:
             self.block.definitions[name] = named
             self.block.lines[name] = lineno
             return "definition"
-        what = _STATEMENT_NAMES.get(type(stmt), type(stmt).__name__)
-        self.fail_node(f"{what} are not part of the formula language", stmt)
+        what = _STATEMENT_NAMES.get(type(stmt), f"{type(stmt).__name__} statements are")
+        self.fail_node(_not_in_language(what), stmt, width=_first_word_width(stmt, self))
 
     def parse_python(self, code, lineno):
         try:
             return ast.parse(code, mode="exec")
         except SyntaxError as err:
-            msg = err.msg or "invalid syntax"
-            rel = (err.lineno or 1) - 1
-            line = lineno + rel
-            src = self.source_lines[line - 1] if line <= len(self.source_lines) else ""
-            col = max(0, (err.offset or 1) - 1)
-            col = min(col, max(0, len(src)))
-            if "unterminated string" in msg or "EOL" in msg:
-                msg = "strings are not part of the formula language"
-            self.fail(f"syntax error: {msg}", line, col, 1)
+            self.syntax_error(err, code, lineno)
         except (RecursionError, MemoryError):
             self.fail(
                 "the formula is nested too deeply or is too long to read (limits: "
@@ -539,8 +655,99 @@ class _Reader:
                 0,
                 1,
             )
-        except ValueError as err:  # e.g. source code cannot contain null bytes
+        except ValueError as err:  # pragma: no cover - NUL and surrogates are refused earlier
             self.fail(f"cannot read the line: {err}", lineno, 0, 1)
+
+    def syntax_error(self, err, code, lineno):
+        """Python's SyntaxError, said in the words of the formula language."""
+        msg = err.msg or "invalid syntax"
+        rel = (err.lineno or 1) - 1
+        line = min(lineno + rel, len(self.source_lines))
+        src = self.source_lines[line - 1]
+        col = max(0, (err.offset or 1) - 1)
+        col = min(col, max(0, len(src)))
+        width = 1
+        if getattr(err, "end_lineno", None) == err.lineno and err.end_offset:
+            width = max(1, min(err.end_offset - 1, len(src)) - col)
+        first = _OPENER_RE.match(code)
+        word = first.group(1) if first else ""
+        assign = _ASSIGN_RE.match(code)
+        if assign and keyword.iskeyword(assign.group(1)):
+            self.check_name(assign.group(1), lineno, code.index(assign.group(1)))
+        if word in _COMPOUND_OPENERS:
+            self.fail(
+                _not_in_language(_COMPOUND_OPENERS[word]), lineno, code.index(word), len(word)
+            )
+        if msg.startswith("unexpected indent") or msg.startswith("unindent"):
+            indent = len(src) - len(src.lstrip())
+            self.fail(
+                "every line of a block starts at the left margin (this one is indented)",
+                line,
+                0,
+                max(1, indent),
+            )
+        if (
+            "unterminated string" in msg
+            or "EOL" in msg
+            or "unicode error" in msg
+            or "triple-quoted" in msg
+        ):
+            self.fail(_not_in_language("strings are"), line, col, 1)
+        if msg.startswith("f-string"):
+            self.fail(_not_in_language("f-strings are"), line, col, 1)
+        if "integer string conversion" in msg:
+            digits = re.search(r"\d{100,}", src)
+            at = digits.start() if digits else col
+            self.fail(
+                "the number is far too long; constants are limited to about "
+                f"{LIMITS['constant_bits'] * 3 // 10:,} digits",
+                line,
+                at,
+                20,
+            )
+        if "too many nested parentheses" in msg:
+            # CPython's tokenizer allows 200 open brackets (MAXLEVEL, from memory)
+            self.fail(
+                "too many nested parentheses for Python's reader; split the formula into "
+                f"definitions (gradwright allows {LIMITS['nesting_depth']} levels)",
+                line,
+                col,
+                1,
+            )
+        if "too complex" in msg:
+            self.fail(
+                "the formula is too complex for Python's reader; split it into definitions",
+                line,
+                col,
+                1,
+            )
+        if code.rstrip().endswith("\\") and ("EOF" in msg or "end of file" in msg):
+            self.fail(
+                "the last line ends with a '\\' continuation but nothing follows",
+                line,
+                max(0, len(src.rstrip()) - 1),
+                1,
+            )
+        if "'(' was never closed" in msg or "was never closed" in msg:
+            self.fail(
+                f"syntax error: {msg} (every opening bracket needs its closing one)",
+                line,
+                col,
+                1,
+            )
+        if msg.startswith("invalid syntax. Perhaps you forgot a comma"):
+            msg = "two operands in a row with no operator between them (a missing @, * or +?)"
+        elif msg == "invalid syntax":
+            msg = (
+                "invalid syntax here (an operand or an operator is missing, or there is one "
+                "too many)"
+            )
+        elif msg.startswith("invalid syntax. Maybe you meant '==' or ':='"):
+            msg = (
+                "'=' can only define a name at the start of a line (R = ...); "
+                "keyword arguments and comparisons are not part of the formula language"
+            )
+        self.fail(f"syntax error: {msg}", line, col, width)
 
     # --- expressions -------------------------------------------------------------------------
 
@@ -584,21 +791,38 @@ class _Reader:
         if isinstance(node, ast.Constant):
             v = node.value
             if isinstance(v, bool) or not isinstance(v, (int, float)):
-                what = {str: "strings", bytes: "bytes", type(None): "None", bool: "booleans",
-                        complex: "complex numbers", type(...): "..."}.get(type(v), repr(v))  # fmt: skip
-                self.fail_node(f"{what} are not part of the formula language", node)
+                what = _LITERAL_NAMES.get(type(v), f"{type(v).__name__} is")
+                self.fail_node(_not_in_language(what), node)
             if isinstance(v, float) and not (v == v and abs(v) != float("inf")):
                 self.fail_node("the number is not finite", node)
             if isinstance(v, float):
                 src = ast.get_source_segment(self.current_source(node), node) or repr(v)
+                src = src.replace("_", "")
+                m = re.fullmatch(r"([0-9.]*)[eE]([+-]?[0-9]+)", src)
+                # the exact value of `1e-999999999` has a billion digits: bound it first
+                if (
+                    m
+                    and (len(m.group(1)) + abs(int(m.group(2)))) * 10 // 3 > LIMITS["constant_bits"]
+                ):
+                    self.fail_node(
+                        "the number is too large or too small to keep exactly (constants are "
+                        f"limited to about {LIMITS['constant_bits'] * 3 // 10:,} digits)",
+                        node,
+                    )
                 try:
-                    return E.Const(Fraction(src.replace("_", "")))
+                    out = E.Const(Fraction(src))
                 except (ValueError, ZeroDivisionError):
-                    return E.Const(Fraction(v))
-            return E.Const(v)
+                    out = E.Const(Fraction(v))
+                self.check_constant_size(out, node)
+                return out
+            out = E.Const(v)
+            self.check_constant_size(out, node)
+            return out
         if isinstance(node, ast.UnaryOp):
             if isinstance(node.op, ast.USub):
-                return E.neg(self.tr(node.operand, depth))
+                out = E.neg(self.tr(node.operand, depth))
+                self.check_constant_size(out, node)
+                return out
             if isinstance(node.op, ast.UAdd):
                 return self.tr(node.operand, depth)
             what = "'not'" if isinstance(node.op, ast.Not) else "the operator ~"
@@ -606,20 +830,29 @@ class _Reader:
         if isinstance(node, ast.BinOp):
             return self.binop(node, depth)
         if isinstance(node, ast.Attribute):
+            a = self.tr(node.value, depth)  # the leftmost problem is reported first
             if node.attr != "T":
-                self.fail_node(
-                    f"attribute access .{node.attr} is not part of the formula language "
-                    "(only .T, the transpose)",
-                    node,
-                )
-            a = self.tr(node.value, depth)
+                if node.attr.startswith("__"):
+                    what = f"dunder attributes like .{node.attr} are"
+                else:
+                    what = f"attribute access .{node.attr} is"
+                self.fail_attr(f"{_not_in_language(what)} (only .T, the transpose)", node)
             if a.is_scalar or E.is_vector_shape(a.shape):
                 return a  # NumPy: .T of a 1-D array is the array itself
             return E.transpose(a)
         if isinstance(node, ast.Call):
             return self.call(node, depth)
-        what = _CONSTRUCT_NAMES.get(type(node), type(node).__name__)
-        self.fail_node(f"{what} are not part of the formula language", node)
+        what = _CONSTRUCT_NAMES.get(type(node), f"{type(node).__name__} expressions are")
+        self.fail_node(_not_in_language(what), node)
+
+    def fail_attr(self, reason, node):
+        """A caret under `.attr` of an attribute node, not under the whole `value.attr`."""
+        lineno = self.base + node.end_lineno - 1 if node.end_lineno else self.base + node.lineno - 1
+        src = self.source_lines[lineno - 1]
+        end = _char_col(src, node.end_col_offset) if node.end_col_offset is not None else len(src)
+        dot = src.rfind(".", 0, end - len(node.attr) + 1)
+        start = dot if dot >= 0 else max(0, end - len(node.attr))
+        self.fail(reason, lineno, start, end - start)
 
     def current_source(self, node):
         return "\n".join(self.source_lines[self.base - 1 :])
@@ -635,8 +868,18 @@ class _Reader:
             )
         if n in FUNCTIONS:
             self.fail_node(f"{n} is a function; call it, like {n}(A)", node)
+        if not n.isascii():
+            self.fail_node(
+                f"unknown name {n!r}: names are written with ASCII letters, digits and '_'", node
+            )
         if n.startswith("__"):
-            self.fail_node(f"unknown name {n!r}: dunder names are not part of the language", node)
+            self.fail_node(f"unknown name {n!r}: dunder names {_not_in_language('are')}", node)
+        if hasattr(builtins, n) or n in _GENERATED_MODULE_NAMES or keyword.iskeyword(n):
+            self.fail_node(
+                f"unknown name {n!r}: Python's own names (builtins, modules) "
+                f"{_not_in_language('are')}; only declared symbols and definitions are",
+                node,
+            )
         known = list(self.env)
         close = difflib.get_close_matches(n, known, n=1)
         hint = f"; did you mean {close[0]}?" if close else ""
@@ -669,9 +912,56 @@ class _Reader:
                     continue
                 self.check_add(acc, t, tnode, acc_node, negate)
                 acc = E.add(acc, E.neg(t) if negate else t)
+                self.check_constant_size(acc, tnode)
             return acc
         a = self.tr(node.left, depth)
         b = self.tr(node.right, depth)
+        if op is ast.Pow:
+            self.check_constant_power(a, b, node)
+        out = self.binop_checked(op, a, b, node)
+        self.check_constant_size(out, node)
+        return out
+
+    def check_constant_power(self, a, b, node):
+        """Refuse `9**9**9` before computing it: exact powers grow by |k| times the bits."""
+        if type(b) is not E.Const or b.value.denominator != 1:
+            return
+        k = b.value.numerator
+        if type(a) is E.Const:
+            base = a.value
+            if base == 0 and k < 0:
+                self.fail_node("division by zero (0 to a negative power)", node)
+            if abs(base.numerator) <= 1 and base.denominator == 1:
+                return  # 0, 1, -1: any power stays small
+            bits = max(base.numerator.bit_length(), base.denominator.bit_length())
+            if bits * abs(k) > LIMITS["constant_bits"]:
+                self.fail_node(
+                    "the constant is too large to compute exactly (more than "
+                    f"{LIMITS['constant_bits']:,} bits); write a smaller power",
+                    node,
+                )
+        elif abs(k).bit_length() > LIMITS["constant_bits"]:  # pragma: no cover - literal bound
+            self.fail_node("the exponent is too large", node)
+
+    def check_constant_size(self, out, node):
+        """Exact constants stay below LIMITS['constant_bits'] (and so stay printable)."""
+        consts = [out] if type(out) is E.Const else [c for c in out.args if type(c) is E.Const]
+        for c in consts:
+            v = c.value
+            if v and v.numerator.bit_length() - v.denominator.bit_length() > 1024:
+                # the generated code computes in float64, whose largest value is about 1.8e308
+                self.fail_node(
+                    "the constant is larger than the largest float64 (about 1.8e308)", node
+                )
+            if max(v.numerator.bit_length(), v.denominator.bit_length()) > LIMITS["constant_bits"]:
+                self.fail_node(
+                    "the constant is too large to compute exactly (more than "
+                    f"{LIMITS['constant_bits']:,} bits, about "
+                    f"{LIMITS['constant_bits'] * 3 // 10:,} digits)",
+                    node,
+                )
+
+    def binop_checked(self, op, a, b, node):
         if op is ast.Mult:
             if not (a.is_scalar or b.is_scalar) and a.shape != b.shape:
                 self.fail_node(
@@ -737,19 +1027,34 @@ class _Reader:
     def call(self, node, depth):
         if not isinstance(node.func, ast.Name):
             if isinstance(node.func, ast.Attribute):
-                self.fail_node(
-                    "method calls are not part of the formula language; write functions "
-                    "like trace(A)",
+                owner = node.func.value
+                if isinstance(owner, ast.Name) and owner.id in ("np", "numpy", "scipy"):
+                    self.fail_node(
+                        f"write {node.func.attr}(...) without the {owner.id}. prefix: the "
+                        "formula language has its own functions (trace, inv, exp, ...)",
+                        node.func,
+                    )
+                self.tr(owner, depth)  # the leftmost problem is reported first
+                self.fail_attr(
+                    f"method calls like .{node.func.attr}(...) {_not_in_language('are')}; "
+                    "write functions like trace(A)",
                     node.func,
                 )
+            if type(node.func) in _CONSTRUCT_NAMES:
+                self.fail_node(_not_in_language(_CONSTRUCT_NAMES[type(node.func)]), node.func)
             self.fail_node("only named functions can be called, like trace(A)", node.func)
         fname = node.func.id
+        if fname.startswith("__"):
+            self.fail_node(
+                f"unknown function {fname!r}: dunder names {_not_in_language('are')}", node.func
+            )
         if node.keywords:
             kw = node.keywords[0]
+            shown = f"{kw.arg}=" if kw.arg else "**"
             self.fail_node(
-                f"keyword arguments are not part of the formula language ({fname} takes "
-                "its arguments by position)",
-                kw.value if kw.arg is None else kw.value,
+                f"keyword arguments like {shown}... {_not_in_language('are')} "
+                f"({fname} takes its arguments by position)",
+                kw if hasattr(kw, "lineno") else kw.value,
             )
         for a in node.args:
             if isinstance(a, ast.Starred):
@@ -766,14 +1071,17 @@ class _Reader:
                 self.fail_node(f"{fname} is a symbol, not a function", node.func)
             close = difflib.get_close_matches(fname, list(FUNCTIONS), n=1)
             hint = f"; did you mean {close[0]}?" if close else ""
+            if not close and (hasattr(builtins, fname) or fname in _GENERATED_MODULE_NAMES):
+                hint = (
+                    f": Python's builtins {_not_in_language('are')}, only its own functions "
+                    "(trace, det, inv, solve, exp, ...)"
+                )
             self.fail_node(f"unknown function {fname!r}{hint}", node.func)
         lo, hi = FUNCTIONS[fname]
         n = len(node.args)
         if not lo <= n <= hi:
             want = str(lo) if lo == hi else f"{lo} or {hi}"
-            self.fail_node(
-                f"{fname} takes {want} argument{'s' if hi > 1 else ''}, got {n}", node
-            )
+            self.fail_node(f"{fname} takes {want} argument{'s' if hi > 1 else ''}, got {n}", node)
         if fname in ("eye", "ones", "zeros", "commutation"):
             dims = [self.dim_arg(a) for a in node.args]
             if fname == "eye":
@@ -785,12 +1093,19 @@ class _Reader:
         if fname == "mpow":
             base = self.tr(node.args[0], depth)
             k = node.args[1]
-            if not (
-                isinstance(k, ast.Constant) and isinstance(k.value, int) and not isinstance(k.value, bool)
-            ) or k.value < 0:
+            if (
+                not (
+                    isinstance(k, ast.Constant)
+                    and isinstance(k.value, int)
+                    and not isinstance(k.value, bool)
+                )
+                or k.value < 0
+            ):
                 self.fail_node("mpow(A, k) needs k to be a non-negative integer literal", k)
             if k.value > 64:
-                self.fail_node("mpow(A, k): k larger than 64 is not supported yet", k, NotSupportedError)
+                self.fail_node(
+                    "mpow(A, k): k larger than 64 is not supported yet", k, NotSupportedError
+                )
             E.MatPow(base, k.value)  # shape check
             if k.value == 0:
                 return E.Identity(base.shape[0])
@@ -865,11 +1180,15 @@ class _Reader:
         raise AssertionError(fname)  # pragma: no cover
 
     def dim_arg(self, node):
-        if isinstance(node, ast.Constant) and isinstance(node.value, int) and not isinstance(
-            node.value, bool
+        if (
+            isinstance(node, ast.Constant)
+            and isinstance(node.value, int)
+            and not isinstance(node.value, bool)
         ):
             if node.value <= 0:
-                self.fail_node("dims must be positive", node)
+                self.fail_node(f"dims must be positive, got {node.value}", node)
+            if node.value.bit_length() > 62:
+                self.fail_node("the dim is too large", node)
             return E.Dim.of(node.value)
         if isinstance(node, ast.Name):
             if node.id in self.block.dims:
@@ -882,6 +1201,14 @@ class _Reader:
                 )
             self.fail_node(f"unknown dim {node.id!r}: it is not used in any declared shape", node)
         self.fail_node("a dim is a name used in a declared shape, or a positive integer", node)
+
+
+def _first_word_width(stmt, reader) -> int:
+    """Width of the keyword that opens a statement (`import`, `del`, ...), for the caret."""
+    src = reader.source_lines[reader.base + stmt.lineno - 2]
+    col = _char_col(src, stmt.col_offset)
+    m = re.match(r"[A-Za-z_]\w*", src[col:])
+    return len(m.group()) if m else 1
 
 
 def _matching_paren(s: str) -> int:
