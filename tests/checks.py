@@ -8,7 +8,6 @@ over scalar, vector and matrix shapes.
 
 from __future__ import annotations
 
-import functools
 import os
 
 import numpy as np
@@ -38,6 +37,8 @@ __all__ = [
     "random_direction",
     "random_point",
     "rel_err",
+    "run_over_shapes",
+    "sizes_for",
     "symbol_shape",
     "unvec",
     "vec",
@@ -69,7 +70,8 @@ def symbol_shape(info, sizes: dict) -> tuple:
     return tuple(dim_size(d, sizes) for d in info.shape)
 
 
-def _sizes_for(derivation, sizes: dict | None) -> dict:
+def sizes_for(derivation, sizes: dict | None = None) -> dict:
+    """The size of every dim of the derivation (DEFAULT_SIZES, small values for other names)."""
     out = dict(DEFAULT_SIZES)
     extra = 6
     for name in derivation.dims:
@@ -113,7 +115,7 @@ def random_point(derivation, seed: int = 0, sizes: dict | None = None, positive=
     Independent of the engine's own sampler. Symbols in `positive` are drawn in [0.5, 2].
     """
     rng = np.random.default_rng(seed)
-    sz = _sizes_for(derivation, sizes)
+    sz = sizes_for(derivation, sizes)
     out = {}
     for name, info in derivation.symbols.items():
         if info.role in ("defined", "target"):
@@ -210,7 +212,7 @@ def jax_grad(ref, arrays: dict, variables) -> tuple:
     def fn(vs):
         return ref(**consts, **vs)
 
-    g = jax.grad(fn)({v: a[v] for v in variables})
+    g = jax.jit(jax.grad(fn))({v: a[v] for v in variables})
     return tuple(np.asarray(g[v]) for v in variables)
 
 
@@ -229,7 +231,7 @@ def _vec_function(ref, arrays: dict, var: str):
 def jax_jacobian(ref, arrays: dict, var: str) -> np.ndarray:
     """d vec(F) / d vec(X)^T by forward mode on the column-major vec'ed function."""
     fv, x0 = _vec_function(ref, arrays, var)
-    return np.asarray(jax.jacfwd(fv)(x0))
+    return np.asarray(jax.jit(jax.jacfwd(fv))(x0))
 
 
 def jax_jvp(ref, arrays: dict, var: str, direction) -> np.ndarray:
@@ -238,8 +240,10 @@ def jax_jvp(ref, arrays: dict, var: str, direction) -> np.ndarray:
     def fn(x):
         return ref(**{**a, var: x})
 
-    _, t = jax.jvp(fn, (a[var],), (jnp.asarray(direction, dtype=jnp.float64),))
-    return np.asarray(t)
+    def tangent(x, v):
+        return jax.jvp(fn, (x,), (v,))[1]
+
+    return np.asarray(jax.jit(tangent)(a[var], jnp.asarray(direction, dtype=jnp.float64)))
 
 
 def jax_vjp(ref, arrays: dict, var: str, cotangent) -> np.ndarray:
@@ -248,14 +252,16 @@ def jax_vjp(ref, arrays: dict, var: str, cotangent) -> np.ndarray:
     def fn(x):
         return ref(**{**a, var: x})
 
-    _, pull = jax.vjp(fn, a[var])
-    return np.asarray(pull(jnp.asarray(cotangent, dtype=jnp.float64))[0])
+    def pullback(x, g):
+        return jax.vjp(fn, x)[1](g)[0]
+
+    return np.asarray(jax.jit(pullback)(a[var], jnp.asarray(cotangent, dtype=jnp.float64)))
 
 
 def jax_hessian(ref, arrays: dict, var: str) -> np.ndarray:
     """The dense Hessian of a scalar `ref` over column-major vec(var)."""
     fv, x0 = _vec_function(ref, arrays, var)
-    return np.asarray(jax.hessian(lambda x: fv(x)[0])(x0))
+    return np.asarray(jax.jit(jax.hessian(lambda x: fv(x)[0]))(x0))
 
 
 # --- the combinator -----------------------------------------------------------------------------
@@ -280,9 +286,3 @@ def run_over_shapes(check, template: str, kinds=("scalar", "vector", "matrix")):
             check(block)
         except AssertionError as err:
             raise AssertionError(f"[{kind}] {err}") from None
-
-
-@functools.cache
-def _warm() -> bool:  # pragma: no cover - keeps the first JAX call out of timing-sensitive tests
-    jax.grad(lambda x: x * x)(1.0)
-    return True
