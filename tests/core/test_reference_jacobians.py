@@ -108,7 +108,7 @@ def test_kronecker_form_equals_dense_jacobian(pair):
 
 def test_robot_arm_jacobians_both_weights():
     """tanh(W2 tanh(W1 x)) w.r.t. both weight matrices, at three random points."""
-    case = next(c for c in JACOBIAN_CASES if c.id == "robot-arm")
+    case = next(c for c in JACOBIAN_CASES if c.id == "map-robot-arm")
     d = _derivation(case)
     assert d.variables == ("W1", "W2")
     for seed in range(3):
@@ -158,7 +158,7 @@ def test_hvp_and_hessian_match_jax(case):
     strict=True,
     raises=Exception,
     reason="engine bug: "
-    + bug_reason(next(c for c in JACOBIAN_CASES if c.id == "entrywise-tanh"), "kronecker"),
+    + bug_reason(next(c for c in JACOBIAN_CASES if c.id == "map-entrywise-tanh"), "kronecker"),
 )
 def test_minimal_kronecker_form_of_entrywise_tanh():
     d = derive("X: (m, n)\nF = tanh(X)", wrt="X")
