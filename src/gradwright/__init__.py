@@ -25,6 +25,9 @@ __all__ = [
 ]
 __version__ = "0.1.0"
 
+#: the largest target, with its definitions written out, that derive() accepts (docs/limits.md)
+MAX_EXPANDED_SIZE = 100_000
+
 
 def derive(text: str, wrt, *, shapes: dict | None = None, sizes: dict | None = None) -> Derivation:
     """Derive a block (or one expression with `shapes`) with respect to the variables `wrt`.
@@ -32,6 +35,7 @@ def derive(text: str, wrt, *, shapes: dict | None = None, sizes: dict | None = N
     `wrt` is a name or a list of names of declared symbols; every other symbol is a constant.
     `sizes` optionally gives typical dim sizes for the generated code's cost model.
     """
+    from .expr import expanded_size
     from .language import parse_block
 
     if isinstance(wrt, str):
@@ -41,6 +45,13 @@ def derive(text: str, wrt, *, shapes: dict | None = None, sizes: dict | None = N
     else:
         raise FormulaError(f"wrt must be a name or a list of names, got {type(wrt).__name__}")
     block = parse_block(text, shapes=shapes)
+    size = expanded_size(block.expr, MAX_EXPANDED_SIZE)
+    if size > MAX_EXPANDED_SIZE:
+        raise NotSupportedError(
+            f"not supported yet: the target expands to more than {MAX_EXPANDED_SIZE:,} parts "
+            "when its definitions are written out (a definition used twice counts twice); "
+            "this is more than gradwright derives in a second or two"
+        )
     if not wrt_list:
         raise FormulaError("name at least one variable to differentiate with respect to")
     seen = []

@@ -6,6 +6,7 @@ Shapes are internal 2-tuples `(rows, cols)` of `Dim`, where `None` marks the uni
 
 from __future__ import annotations
 
+import hashlib
 import math
 from collections.abc import Iterable
 from dataclasses import dataclass
@@ -124,7 +125,7 @@ def describe(e: Expr) -> str:
 class Expr:
     """Base class. `args` holds everything that defines the node; `func(*args) == self`."""
 
-    __slots__ = ("args", "shape", "_hash", "_symbols", "_hasdiff", "_key")
+    __slots__ = ("args", "shape", "_hash", "_symbols", "_hasdiff", "_key", "_sym")
 
     def __init__(self, *args):
         self.args = args
@@ -132,6 +133,7 @@ class Expr:
         self._symbols = None
         self._hasdiff = None
         self._key = None
+        self._sym = None
         self.shape = self._infer_shape()
 
     def _infer_shape(self) -> Shape:  # pragma: no cover - every class overrides
@@ -170,10 +172,18 @@ class Expr:
     def key(self) -> str:
         """A deterministic text key (independent of hash seeds) used to order operands."""
         if self._key is None:
+            if type(self) is Named:
+                # a definition is known by its name; its body may be a large shared DAG
+                self._key = f"Named({self.args[0]}:{self.args[1].key()[:40]})"
+                return self._key
             parts = []
             for a in self.args:
                 parts.append(a.key() if isinstance(a, Expr) else _arg_key(a))
-            self._key = f"{type(self).__name__}({','.join(parts)})"
+            key = f"{type(self).__name__}({','.join(parts)})"
+            if len(key) > 240:  # keep keys bounded on shared DAGs: a digest of the parts
+                digest = hashlib.blake2b(key.encode(), digest_size=10).hexdigest()
+                key = f"{key[:120]}#{digest}"
+            self._key = key
         return self._key
 
     def __repr__(self):
@@ -635,6 +645,12 @@ SYMMETRIC_WORDS = frozenset({"symmetric", "spd", "diagonal"})
 
 def is_symmetric(e: Expr) -> bool:
     """True when e is known to be symmetric (scalars count; vectors do not)."""
+    if e._sym is None:
+        e._sym = _is_symmetric(e)
+    return e._sym
+
+
+def _is_symmetric(e: Expr) -> bool:
     if e.is_scalar:
         return True
     if not is_matrix_shape(e.shape) or e.shape[0] != e.shape[1]:
@@ -890,7 +906,20 @@ def _cancels(a: Expr, b: Expr) -> bool:
     return (type(a) is Inverse and a.args[0] == b) or (type(b) is Inverse and b.args[0] == a)
 
 
-def transpose(e: Expr) -> Expr:
+def transpose(e: Expr, _memo: dict | None = None) -> Expr:
+    if e.is_scalar:
+        return e
+    if _memo is None:
+        _memo = {}
+    hit = _memo.get(id(e))
+    if hit is not None:
+        return hit[1]
+    out = _transpose(e, _memo)
+    _memo[id(e)] = (e, out)
+    return out
+
+
+def _transpose(e: Expr, memo: dict) -> Expr:
     t = type(e)
     if e.is_scalar:
         return e
@@ -899,23 +928,23 @@ def transpose(e: Expr) -> Expr:
     if is_matrix_shape(e.shape) and is_symmetric(e):
         return e
     if t is Add:
-        return add(*(transpose(a) for a in e.args))
+        return add(*(transpose(a, memo) for a in e.args))
     if t is Mul:
-        return mul(*(transpose(a) for a in e.args))
+        return mul(*(transpose(a, memo) for a in e.args))
     if t is MatMul:
-        return matmul(*(transpose(a) for a in reversed(e.args)))
+        return matmul(*(transpose(a, memo) for a in reversed(e.args)))
     if t in (Ones, Zero):
         return t((e.shape[1], e.shape[0]))
     if t is Inverse:
-        return Inverse(transpose(e.args[0]))
+        return Inverse(transpose(e.args[0], memo))
     if t is Func:
-        return Func(e.args[0], transpose(e.args[1]))
+        return Func(e.args[0], transpose(e.args[1], memo))
     if t is Power:
-        return Power(transpose(e.args[0]), e.args[1])
+        return Power(transpose(e.args[0], memo), e.args[1])
     if t is Kron:
-        return Kron(transpose(e.args[0]), transpose(e.args[1]))
+        return Kron(transpose(e.args[0], memo), transpose(e.args[1], memo))
     if t is MatPow:
-        return MatPow(transpose(e.args[0]), e.args[1])
+        return MatPow(transpose(e.args[0], memo), e.args[1])
     if t is Commutation:
         return Commutation(e.args[1], e.args[0])
     return Transpose(e)
@@ -1169,3 +1198,20 @@ def inline_named(e: Expr) -> Expr:
     """Replace every Named node by its body."""
     mapping = {x: inline_named(x.body) for x in walk(e) if type(x) is Named}
     return substitute(e, mapping) if mapping else e
+
+
+def expanded_size(e: Expr, limit: int) -> int:
+    """The size of e with every definition written out (linear time); capped at limit + 1."""
+    memo: dict = {}
+    stack: list = [(e, False)]
+    while stack:
+        x, done = stack.pop()
+        if done:
+            memo[id(x)] = min(limit + 1, 1 + sum(memo[id(c)] for c in x.children))
+            continue
+        if id(x) in memo:
+            continue
+        memo[id(x)] = 0
+        stack.append((x, True))
+        stack.extend((c, False) for c in x.children if id(c) not in memo)
+    return memo[id(e)]

@@ -22,8 +22,18 @@ class Printer:
             raise TypeError(f"unknown printer settings: {', '.join(sorted(unknown))}")
         self.settings = {**self.default_settings, **settings}
 
+    #: the largest expression (counted as a tree, shared parts as often as they occur)
+    #: that a printer writes out in full; larger ones print as a short placeholder
+    max_tree_size = 20_000
+
     def doprint(self, e: E.Expr) -> str:
+        size = tree_size(e, self.max_tree_size)
+        if size > self.max_tree_size:
+            return self.too_large(size)
         return self._print(e)
+
+    def too_large(self, size: int) -> str:
+        return f"<expression too large to show: more than {self.max_tree_size:,} parts>"
 
     def _print(self, e: E.Expr) -> str:
         for cls in type(e).__mro__:
@@ -76,3 +86,22 @@ def fraction_text(v: Fraction) -> str | None:
         return None
     text = f"{float(v):.12g}"
     return text if Fraction(text) == v else None
+
+
+def tree_size(e: E.Expr, limit: int) -> int:
+    """The size of e printed as a tree (linear time on the DAG); stops counting past limit."""
+    memo: dict = {}
+    stack: list = [(e, False)]
+    while stack:
+        x, done = stack.pop()
+        if done:
+            kids = () if type(x) is E.Named else x.children  # definitions print by name
+            memo[id(x)] = min(limit + 1, 1 + sum(memo[id(c)] for c in kids))
+            continue
+        if id(x) in memo:
+            continue
+        memo[id(x)] = 0  # in progress
+        stack.append((x, True))
+        if type(x) is not E.Named:
+            stack.extend((c, False) for c in x.children if id(c) not in memo)
+    return memo[id(e)]

@@ -56,6 +56,9 @@ class LatexPrinter(Printer):
         "dim_subscripts": False,  # I_n, 1_n rather than I, 1
     }
 
+    def too_large(self, size: int) -> str:
+        return rf"\text{{(too large to show: more than {self.max_tree_size:,} parts)}}"
+
     def paren(self, e: E.Expr, level: int) -> str:
         text = self._print(e)
         if P.latex_precedence(e) < level:

@@ -488,7 +488,8 @@ class NumpyPrinter(TextPrinter):
         return f"{code}({self._print(e.arg)})"
 
     def label(self, e: E.Expr) -> str:
-        return repr(TextPrinter().doprint(e))
+        words = TextPrinter().doprint(e)
+        return repr(words if len(words) <= 60 else words[:57] + "...")
 
     def _print_Trace(self, e):
         a = e.args[0]
@@ -735,7 +736,12 @@ class CodeGen:
             counter[0] += 1
             return f"_t{counter[0]}"
 
+        visited: set = set()
+
         def emit(node):
+            if id(node) in visited:
+                return
+            visited.add(id(node))
             for c in node.children:
                 emit(c)
             if node in shared and node not in self.temps:
