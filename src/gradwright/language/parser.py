@@ -647,10 +647,12 @@ class _Reader:
         except SyntaxError as err:
             self.syntax_error(err, code, lineno)
         except (RecursionError, MemoryError):
+            # Python builds the tree of `a + b + ...` by recursion: about 2,900 terms in one
+            # chain is the most it reads at the default recursion limit (measured on 3.11)
             self.fail(
-                "the formula is nested too deeply or is too long to read (limits: "
-                f"{LIMITS['nesting_depth']} levels of nesting, {LIMITS['expression_nodes']:,} "
-                "parts); split it into definitions",
+                "the formula is too long or too deeply nested for Python's reader (at most "
+                "about 2,500 terms in one chain of + or *, and "
+                f"{LIMITS['nesting_depth']} levels of nesting); split it into definitions",
                 lineno,
                 0,
                 1,
@@ -779,8 +781,8 @@ class _Reader:
             self.fail_node(msg, node, cls)
         if _depth(out, self.depth_cache) > LIMITS["nesting_depth"] * 2:
             self.fail_node(
-                "the definitions nest too deeply (through the names they use); "
-                "flatten some of them",
+                "the definitions nest too deeply: through the names they use this expression "
+                f"is more than {LIMITS['nesting_depth'] * 2} levels deep; flatten some of them",
                 node,
             )
         return out
@@ -903,16 +905,23 @@ class _Reader:
                 items.append((isinstance(cur.op, ast.Sub), cur.right))
                 cur = cur.left
             terms_nodes = [(False, cur)] + list(reversed(items))
-            acc = None
-            acc_node = cur
+            # the terms are collected and summed once: adding one at a time re-collects the
+            # growing sum at every step, quadratic in the number of terms
+            terms = []
+            widest = None  # the first array term: the sum's shape
             for negate, tnode in terms_nodes:
                 t = self.tr(tnode, depth)
-                if acc is None:
-                    acc = t
-                    continue
-                self.check_add(acc, t, tnode, acc_node, negate)
-                acc = E.add(acc, E.neg(t) if negate else t)
-                self.check_constant_size(acc, tnode)
+                if terms:
+                    self.check_add(
+                        widest if widest is not None else terms[0], t, tnode, cur, negate
+                    )
+                if widest is None and not t.is_scalar:
+                    widest = t
+                terms.append(E.neg(t) if negate and terms else t)
+            if len(terms) == 1:
+                return terms[0]
+            acc = E.add(*terms)
+            self.check_constant_size(acc, node)
             return acc
         a = self.tr(node.left, depth)
         b = self.tr(node.right, depth)
