@@ -245,7 +245,8 @@ class Derivation:
                     break
             if jac is not None:
                 for v in self.variables:
-                    parts.append(E.matmul(jac[v], E.vec(E.Differential(self._vars[v]))))
+                    dv = E.Differential(self._vars[v])
+                    parts.append(E.matmul(jac[v], dv if dv.is_scalar else E.vec(dv)))
                 steps.append(
                     Step(
                         "differential",

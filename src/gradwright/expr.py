@@ -972,12 +972,17 @@ def div(a: Expr, b: Expr) -> Expr:
     return mul(a, power(b, Const(-1)))
 
 
+def _terms_broadcast(a: Add) -> list:
+    """The terms of an array-shaped sum, a scalar term c written as c * ones(shape)."""
+    return [mul(t, Ones(a.shape)) if t.is_scalar else t for t in a.args]
+
+
 def trace(a: Expr) -> Expr:
     if type(a) is Zero:
         _need_square(a, "trace")
         return ZERO
     if type(a) is Add:
-        return add(*(trace(t) for t in a.args))
+        return add(*(trace(t) for t in _terms_broadcast(a)))
     if type(a) is Mul and a.scalar_factors:
         arr = a.array_factors
         return mul(*a.scalar_factors, trace(arr[0] if len(arr) == 1 else Mul(*arr)))
@@ -994,7 +999,7 @@ def summation(a: Expr) -> Expr:
     if type(a) is Zero:
         return ZERO
     if type(a) is Add:
-        return add(*(summation(t) for t in a.args))
+        return add(*(summation(t) for t in _terms_broadcast(a)))
     if type(a) is Mul and a.scalar_factors:
         arr = a.array_factors
         return mul(*a.scalar_factors, summation(arr[0] if len(arr) == 1 else Mul(*arr)))
@@ -1006,10 +1011,12 @@ def summation(a: Expr) -> Expr:
 def vec(a: Expr) -> Expr:
     if is_col(a.shape):
         return a
+    if type(a) is Ones:
+        return Ones((shape_size(a.shape), None))
     if type(a) is Zero:
         return Zero((shape_size(a.shape), None))
     if type(a) is Add:
-        return add(*(vec(t) for t in a.args))
+        return add(*(vec(t) for t in _terms_broadcast(a)))
     if type(a) is Mul and a.scalar_factors and len(a.array_factors) == 1:
         return mul(*a.scalar_factors, vec(a.array_factors[0]))
     if is_row(a.shape) and type(a) is Transpose:
@@ -1029,7 +1036,7 @@ def unvec(g: Expr, rows: OptDim, cols: OptDim) -> Expr:
     if type(g) is Mul and g.scalar_factors and len(g.array_factors) == 1:
         return mul(*g.scalar_factors, unvec(g.array_factors[0], rows, cols))
     if type(g) is Add:
-        return add(*(unvec(t, rows, cols) for t in g.args))
+        return add(*(unvec(t, rows, cols) for t in _terms_broadcast(g)))
     return Unvec(g, rows, cols)
 
 
@@ -1039,10 +1046,10 @@ def diag(a: Expr) -> Expr:
     if type(a) is Zero:
         return Zero((a.shape[0], None))
     if type(a) is Add:
-        return add(*(diag(t) for t in a.args))
+        return add(*(diag(t) for t in _terms_broadcast(a)))
     if type(a) is Mul and a.scalar_factors and len(a.array_factors) == 1:
         return mul(*a.scalar_factors, diag(a.array_factors[0]))
-    if type(a) is Identity:
+    if type(a) is Identity or type(a) is Ones:
         return Ones((a.shape[0], None))
     if type(a) is Transpose:
         return diag(a.args[0])

@@ -208,7 +208,10 @@ class LatexPrinter(Printer):
         return self.call(FUNC_LATEX[e.name], e.arg)
 
     def _print_Trace(self, e):
-        return self.call(r"\operatorname{tr}", e.args[0])
+        a = e.args[0]
+        if type(a) in (E.Ones, E.Identity):  # the number of rows
+            return dim_latex(a.shape[0])
+        return self.call(r"\operatorname{tr}", a)
 
     def _print_Det(self, e):
         return self.call(r"\det", e.args[0])
@@ -232,7 +235,10 @@ class LatexPrinter(Printer):
         return self.call(r"\operatorname{Diag}", e.args[0])
 
     def _print_Sum(self, e):
-        return self.call(r"\operatorname{sum}", e.args[0])
+        a = e.args[0]
+        if type(a) is E.Ones:  # the number of entries
+            return " ".join(dim_latex(d) for d in a.shape if d is not None)
+        return self.call(r"\operatorname{sum}", a)
 
     def _print_Norm(self, e):
         a = e.args[0]

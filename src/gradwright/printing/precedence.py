@@ -46,6 +46,14 @@ def latex_precedence(e: E.Expr) -> int:
         return PRODUCT
     if t in (E.Transpose, E.Inverse, E.Power, E.MatPow):
         return POSTFIX
+    if t in (E.Sum, E.Trace) and type(e.args[0]) in (E.Ones, E.Identity):
+        shape = e.args[0].shape
+        named = [d for d in shape if d is not None]
+        return (
+            PRODUCT
+            if len(named) > 1 or any(len(d.names) + (d.coef != 1) > 1 for d in named)
+            else ATOM
+        )
     return ATOM
 
 
