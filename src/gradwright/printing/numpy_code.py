@@ -31,14 +31,19 @@ def _gw_check(specs):
         try:
             a = np.asarray(value)
         except Exception as err:
-            raise TypeError(f"{name} must be a numeric array ({err})") from None
+            raise TypeError(
+                f"{name} must be a numeric array; NumPy cannot read it ({err})"
+            ) from None
         if a.dtype.kind not in "biufc":
-            raise TypeError(f"{name} must be a numeric array, got dtype {a.dtype}")
+            got = f"dtype {a.dtype}" if isinstance(value, np.ndarray) else type(value).__name__
+            raise TypeError(f"{name} must be a numeric array, got {got}")
         if a.dtype.kind in "bi":
             a = a.astype(float)
         if a.ndim != len(spec):
             want = ("a scalar", "a vector", "a matrix")[len(spec)]
-            raise ValueError(f"{name} should be {want} {tuple(spec)} but has shape {a.shape}")
+            shown = "(" + ", ".join(map(str, spec)) + ("," if len(spec) == 1 else "") + ")"
+            axes = "1 axis" if a.ndim == 1 else f"{a.ndim} axes"
+            raise ValueError(f"{name} should be {want} {shown} but has {axes}, shape {a.shape}")
         for axis, (d, n) in enumerate(zip(spec, a.shape)):
             word = ("rows", "columns")[axis] if len(spec) == 2 else "entries"
             if isinstance(d, int):
@@ -68,8 +73,10 @@ def _gw_check(specs):
 ''',
     "_gw_finite": """
 def _gw_finite(value, what):
-    if not np.all(np.isfinite(value)):
-        warnings.warn(f"{what} is not finite (inf or nan)", RuntimeWarning, stacklevel=3)
+    bad = np.size(value) - np.count_nonzero(np.isfinite(value))
+    if bad:
+        where = "" if np.ndim(value) == 0 else f" in {bad} of {np.size(value)} entries"
+        warnings.warn(f"{what} is not finite (inf or nan){where}", RuntimeWarning, stacklevel=3)
     return value
 """,
     "_gw_solve": """
@@ -77,8 +84,10 @@ def _gw_solve(a, b, label):
     try:
         return np.linalg.solve(a, b)
     except np.linalg.LinAlgError:
+        who = label[:-2] if label.endswith(".T") and label[:-2].isidentifier() else label
         raise np.linalg.LinAlgError(
-            f"{label} is singular: solving with it needs an invertible matrix"
+            f"{who} is singular: the formula or its derivative solves with it (inv, solve, "
+            "logdet), which needs an invertible matrix"
         ) from None
 """,
     "_gw_inv": """
@@ -86,19 +95,28 @@ def _gw_inv(a, label):
     try:
         return np.linalg.inv(a)
     except np.linalg.LinAlgError:
+        who = label[:-2] if label.endswith(".T") and label[:-2].isidentifier() else label
         raise np.linalg.LinAlgError(
-            f"{label} is singular: inv needs an invertible matrix"
+            f"{who} is singular: the formula or its derivative needs its inverse (inv, solve, "
+            "det, logdet), which does not exist"
         ) from None
 """,
     "_gw_logdet": """
 def _gw_logdet(a, label):
     sign, value = np.linalg.slogdet(a)
     if sign == 0:
-        raise np.linalg.LinAlgError(f"{label} is singular: logdet needs an invertible matrix")
+        who = label[:-2] if label.endswith(".T") and label[:-2].isidentifier() else label
+        raise np.linalg.LinAlgError(
+            f"{who} is singular (determinant 0): logdet needs an invertible matrix"
+        )
     return value
 """,
     "_gw_cho": """
 def _gw_cho(a, label):
+    # cho_factor reads one triangle only: an unsymmetric input would give a silently wrong
+    # answer; the tolerance is relative to the largest entry (common practice)
+    if np.max(np.abs(a - a.T), initial=0.0) > 1e-8 * max(1.0, np.max(np.abs(a), initial=0.0)):
+        raise ValueError(f"{label} is declared spd but is not symmetric")
     try:
         return cho_factor(a)
     except np.linalg.LinAlgError:
