@@ -937,9 +937,9 @@ def _transpose(e: Expr, memo: dict) -> Expr:
         return t((e.shape[1], e.shape[0]))
     if t is Inverse:
         return Inverse(transpose(e.args[0], memo))
-    if t is Func:
+    if t is Func and is_matrix_shape(e.shape):  # a vector's transpose stays outside: f(x)^T
         return Func(e.args[0], transpose(e.args[1], memo))
-    if t is Power:
+    if t is Power and is_matrix_shape(e.shape):
         return Power(transpose(e.args[0], memo), e.args[1])
     if t is Kron:
         return Kron(transpose(e.args[0], memo), transpose(e.args[1], memo))
