@@ -91,9 +91,9 @@ BLOCKS = [
 ]
 
 MODULE_NAMES = {"np", "warnings", "cho_factor", "cho_solve"}
-# names the generator itself uses inside functions: outputs, loop counters of dense Jacobians
-GENERATOR_LOCALS = {"value", "jvp", "vjp", "hvp", "hess", "jac", "col", "e", "k", "n_in",
-                    "n_out", "_dims", "_direction", "_cotangent"}  # fmt: skip
+# names the generator uses inside functions besides `_`-prefixed ones (which no user name can
+# be, the parser refuses them)
+GENERATOR_LOCALS = {"_dims", "_direction", "_cotangent"}
 # the parser refuses user names starting with '_', so every such name is the generator's own
 GENERATOR_LOCAL_RE = re.compile(r"^(_[a-z]\w*|grad_\w+)$")
 ALLOWED_BUILTINS = {"range", "float"}
@@ -126,6 +126,14 @@ def test_generated_source_uses_only_known_identifiers(block, wrt):
         if isinstance(stmt, (ast.Import, ast.ImportFrom)):
             assert ast.unparse(stmt) in IMPORTS
             continue
+        if isinstance(stmt, ast.Assign):  # a table of the generated functions, by name
+            (target,) = stmt.targets
+            assert isinstance(target, ast.Name) and target.id.startswith("_gw_")
+            assert isinstance(stmt.value, ast.Dict), ast.unparse(stmt)[:200]
+            for key, value in zip(stmt.value.keys, stmt.value.values):
+                assert isinstance(key, ast.Constant) and isinstance(value, ast.Name)
+                assert key.value == value.id and value.id in functions
+            continue
         assert isinstance(stmt, ast.FunctionDef), ast.unparse(stmt)[:200]
         if stmt.name in helpers:  # our own helper text, verbatim
             assert ast.dump(stmt) == ast.dump(ast.parse(HELPERS[stmt.name]).body[0])
@@ -145,7 +153,12 @@ def test_generated_source_uses_only_known_identifiers(block, wrt):
                 pytest.fail(f"{stmt.name}: unexpected {type(node).__name__}")
             elif isinstance(node, ast.Call):
                 f = node.func
-                assert isinstance(f, (ast.Name, ast.Attribute)), ast.unparse(node)
+                if isinstance(f, ast.Subscript):  # a table of our functions: _table["name"]
+                    assert isinstance(f.value, ast.Name), ast.unparse(node)
+                    assert GENERATOR_LOCAL_RE.match(f.value.id), ast.unparse(node)
+                    assert isinstance(f.slice, ast.Constant) and f.slice.value in functions
+                else:
+                    assert isinstance(f, (ast.Name, ast.Attribute)), ast.unparse(node)
 
 
 HOSTILE_COMMENTS = [
@@ -168,11 +181,6 @@ def test_comments_stay_inside_the_module_docstring(comment, tmp_path, monkeypatc
     assert list(tmp_path.iterdir()) == []
 
 
-@pytest.mark.xfail(
-    strict=True,
-    reason="the block is quoted into a non-raw docstring, so a backslash escape in a comment "
-    "breaks the generated module (NEEDS_FROM_CORE.md: 'docstring escapes')",
-)
 @pytest.mark.parametrize("comment", ["# C:\\new\\x1", "# \\N", "# \\u00"])
 def test_backslash_escapes_in_comments_do_not_break_the_module(comment):
     d = derive(f"A: (n, n)\nf = trace(A)  {comment}", wrt="A")
@@ -274,15 +282,10 @@ def test_accepted_block_runs_nothing_but_numpy(quiet_cwd):
 
 # --- user names never collide with the generator's own names --------------------------------
 
-COLLIDES = pytest.mark.xfail(
-    strict=True,
-    reason="the generated functions use this name for a local of their own (an output or a "
-    "loop counter), shadowing the user's symbol (NEEDS_FROM_CORE.md: 'generated locals')",
-)
-USER_NAMES = [
-    pytest.param(n, marks=COLLIDES)
-    for n in ("value", "k", "e", "col", "jac", "hess", "n_in", "n_out")
-] + ["jvp", "vjp", "hvp", "grad_x", "gradient_x", "hessian_x", "x2"]
+# names the generated functions once used for locals of their own (outputs, loop counters),
+# and the names of the generated functions themselves
+USER_NAMES = ["value", "k", "e", "col", "jac", "hess", "n_in", "n_out", "jvp", "vjp", "hvp",
+              "grad_x", "gradient_x", "hessian_x", "jvp_x", "value_and_gradient", "x2"]  # fmt: skip
 
 
 @pytest.mark.parametrize("name", USER_NAMES)
