@@ -348,8 +348,8 @@ class Derivation:
             C.FunctionSpec(
                 "value",
                 f"The value of {self.target}.",
-                [C.Output("value", value, tgt_shape, "the value")],
-                _ret("value", tgt_shape),
+                [C.Output("_value", value, tgt_shape, "the value")],
+                _ret("_value", tgt_shape),
             )
         ]
         if self.is_scalar:
@@ -359,17 +359,17 @@ class Derivation:
                     C.FunctionSpec(
                         f"gradient_{v}",
                         f"The gradient of {self.target} with respect to {v} (shaped like {v}).",
-                        [C.Output(f"grad_{v}", gl, self._vars[v].shape, f"the gradient of {v}")],
-                        f"grad_{v}",
+                        [C.Output(f"_grad_{v}", gl, self._vars[v].shape, f"the gradient of {v}")],
+                        f"_grad_{v}",
                     )
                 )
             # the value's subexpressions are computed anyway: free for the gradients here
             free = frozenset(E.walk(value))
-            both = [C.Output("value", value, tgt_shape, "the value")]
+            both = [C.Output("_value", value, tgt_shape, "the value")]
             for v in self.variables:
                 gl = C.lower(self._gradient(v), cost, free)
-                both.append(C.Output(f"grad_{v}", gl, self._vars[v].shape, f"the gradient of {v}"))
-            rets = ", ".join(f"grad_{v}" for v in self.variables)
+                both.append(C.Output(f"_grad_{v}", gl, self._vars[v].shape, f"the gradient of {v}"))
+            rets = ", ".join(f"_grad_{v}" for v in self.variables)
             if len(self.variables) > 1:
                 rets = f"({rets})"
             specs.append(
@@ -382,7 +382,7 @@ class Derivation:
                         else "."
                     ),
                     both,
-                    f"{_ret('value', tgt_shape)}, {rets}",
+                    f"{_ret('_value', tgt_shape)}, {rets}",
                 )
             )
         for v in self.variables:
@@ -392,8 +392,8 @@ class Derivation:
                 C.FunctionSpec(
                     f"jvp_{v}",
                     f"d{self.target} along the direction d{v} (shaped like {self.target}).",
-                    [C.Output("jvp", lin, tgt_shape, "the directional derivative")],
-                    _ret("jvp", tgt_shape),
+                    [C.Output("_jvp", lin, tgt_shape, "the directional derivative")],
+                    _ret("_jvp", tgt_shape),
                     direction=("_direction", v, sym.shape),
                 )
             )
@@ -404,8 +404,8 @@ class Derivation:
                     f"vjp_{v}",
                     f"The vector-Jacobian product with a cotangent shaped like {self.target} "
                     f"(result shaped like {v}).",
-                    [C.Output("vjp", vjp, sym.shape, "the vector-Jacobian product")],
-                    "vjp",
+                    [C.Output("_vjp", vjp, sym.shape, "the vector-Jacobian product")],
+                    "_vjp",
                     direction=("_cotangent", "_cotangent", tgt_shape),
                 )
             )
@@ -419,17 +419,17 @@ class Derivation:
                     f"The dense Jacobian d vec({self.target}) / d vec({v})^T (column-major vec); "
                     "for small sizes.",
                     [],
-                    "jac",
+                    "_jac",
                     loop=(
-                        f"    n_in, n_out = {n_in}, {n_out}\n"
-                        "    jac = np.empty((n_out, n_in), dtype=np.result_type(float, "
+                        f"    _n_in, _n_out = {n_in}, {n_out}\n"
+                        "    _jac = np.empty((_n_out, _n_in), dtype=np.result_type(float, "
                         + (gen.required[0] if gen.required else "0.0")
                         + "))\n"
-                        "    for k in range(n_in):\n"
-                        "        e = np.zeros(n_in)\n"
-                        "        e[k] = 1.0\n"
-                        f"        col = jvp_{v}({reshape_in}, {call_args})\n"
-                        '        jac[:, k] = np.reshape(col, -1, order="F")'
+                        "    for _k in range(_n_in):\n"
+                        "        _e = np.zeros(_n_in)\n"
+                        "        _e[_k] = 1.0\n"
+                        f'        _col = _gw_functions["jvp_{v}"]({reshape_in}, {call_args})\n'
+                        '        _jac[:, _k] = np.reshape(_col, -1, order="F")'
                     ),
                 )
             )
@@ -443,8 +443,8 @@ class Derivation:
                         f"hvp_{v}",
                         f"The Hessian of {self.target} with respect to {v} applied to a "
                         f"direction shaped like {v}.",
-                        [C.Output("hvp", hv, sym.shape, "the Hessian-vector product")],
-                        "hvp",
+                        [C.Output("_hvp", hv, sym.shape, "the Hessian-vector product")],
+                        "_hvp",
                         direction=("_direction", v, sym.shape),
                     )
                 )
@@ -453,15 +453,15 @@ class Derivation:
                         f"hessian_{v}",
                         f"The dense Hessian of {self.target} over column-major vec({v}).",
                         [],
-                        "hess",
+                        "_hess",
                         loop=(
-                            f"    n_in = {n_in}\n"
-                            "    hess = np.empty((n_in, n_in))\n"
-                            "    for k in range(n_in):\n"
-                            "        e = np.zeros(n_in)\n"
-                            "        e[k] = 1.0\n"
-                            f"        col = hvp_{v}({reshape_in}, {call_args})\n"
-                            '        hess[:, k] = np.reshape(col, -1, order="F")'
+                            f"    _n_in = {n_in}\n"
+                            "    _hess = np.empty((_n_in, _n_in))\n"
+                            "    for _k in range(_n_in):\n"
+                            "        _e = np.zeros(_n_in)\n"
+                            "        _e[_k] = 1.0\n"
+                            f'        _col = _gw_functions["hvp_{v}"]({reshape_in}, {call_args})\n'
+                            '        _hess[:, _k] = np.reshape(_col, -1, order="F")'
                         ),
                     )
                 )
@@ -475,8 +475,12 @@ class Derivation:
             header = (
                 '"""NumPy code generated by gradwright from the block:\n\n'
                 + "\n".join(
-                    "    " + line for line in self.text_block.strip("\n").split("\n")
-                ).replace('"""', "'''")
+                    "    " + line
+                    for line in self.text_block.strip("\n")
+                    .replace("\\", "\\\\")
+                    .replace('"""', "'''")
+                    .split("\n")
+                )
                 + (
                     f"\n\nVariables: {', '.join(self.variables)}. Arrays are passed by keyword.\n"
                     '"""'
@@ -659,7 +663,7 @@ def _size_code(shape) -> str:
 def _reshape_code(shape) -> str:
     r, c = shape
     if r is None and c is None:
-        return "e[0]"
+        return "_e[0]"
     if r is None or c is None:
-        return "e"
-    return f'e.reshape(({_size_code((r, None))}, {_size_code((c, None))}), order="F")'
+        return "_e"
+    return f'_e.reshape(({_size_code((r, None))}, {_size_code((c, None))}), order="F")'

@@ -836,8 +836,14 @@ def module(header: str, functions: list[str], helpers: set, uses_scipy: bool) ->
     for name in sorted(helpers):
         lines.append(HELPERS[name].rstrip())
         lines.append("")
+    names = []
     for f in functions:
         lines.append("")
         lines.append(f)
         lines.append("")
+        names.append(f[4 : f.index("(")])
+    # the dense Jacobian and Hessian loops call the products through this table, so that no
+    # user symbol of the same name can shadow them
+    lines.append("")
+    lines.append("_gw_functions = {" + ", ".join(f'"{n}": {n}' for n in names) + "}")
     return "\n".join(lines).rstrip() + "\n"
