@@ -170,3 +170,48 @@ def test_finite_results_do_not_warn(factor):
         warnings.simplefilter("error")
         d.value_and_gradient_function()(**a)
         d.hessian_function("U")(**a)
+
+
+def test_product_dims_are_inferred_or_checked():
+    d = derive("A: (m, n)\ny: (m*n,)\nf = vec(A) @ y", wrt="A")
+    assert d.function()(A=np.ones((2, 3)), y=np.ones(6)) == 6.0
+    with pytest.raises(ValueError, match=r"^y has 5 entries but m\*n = 6$"):
+        d.function()(A=np.ones((2, 3)), y=np.ones(5))
+    # one unknown factor of a product dim is inferred from the other arguments
+    d = derive("x: (m,)\ny: (m*n,)\nz: (n,)\nf = sum(y) + sum(z) + sum(x)", wrt="x")
+    assert d.function()(x=np.ones(2), y=np.ones(6), z=np.ones(3)) == 11.0
+    with pytest.raises(ValueError, match=r"^y has 6 entries but m\*n = 8$"):
+        d.function()(x=np.ones(2), y=np.ones(6), z=np.ones(4))
+
+
+def test_a_dim_no_argument_fixes_is_named():
+    d = derive("X: (m, n)\ny: (m*n,)\nF = outer(vec(y), y) @ commutation(m, n)", wrt="X")
+    with pytest.raises(ValueError, match=r"^the size of dim m is not known from the arrays"):
+        d.function()(y=np.ones(6))
+
+
+BROADCAST_DISTRIBUTED = pytest.mark.xfail(
+    strict=True,
+    raises=Exception,
+    reason="the code generator distributes a product over a sum holding a broadcast scalar "
+    "and builds an invalid node (NEEDS_FROM_CORE.md: 'distribute over broadcast sums')",
+)
+
+
+@BROADCAST_DISTRIBUTED
+@pytest.mark.parametrize(
+    ("block", "wrt"),
+    [
+        ("P: ()\nU: (s, r)\nV: (w, r)\nR = P - U @ V.T\nloss = sum(R**2)", ["U", "V"]),
+        ("X: (m, n)\ny: (m*n,)\nF = outer(vec(X), y - 1) @ commutation(m, n)", ["X"]),
+    ],
+)
+def test_broadcast_scalar_in_a_distributed_product(block, wrt):
+    from gradwright.evaluate import evaluate
+    from gradwright.language import parse_block
+
+    d = derive(block, wrt=wrt)
+    d.source()
+    arrays = d.sample_inputs(seed=0)
+    reference = evaluate(parse_block(block).expr, arrays)
+    np.testing.assert_allclose(d.function()(**arrays), reference)

@@ -22,9 +22,19 @@ from .text import TextPrinter
 
 HELPERS = {
     "_gw_check": '''
+class _GwDims(dict):
+    """Dim sizes bound by the arguments; a size no argument fixes is a clear error."""
+
+    def __missing__(self, key):
+        raise ValueError(
+            f"the size of dim {key} is not known from the arrays passed (none of them has "
+            f"{key} as a dim of its own)"
+        )
+
+
 def _gw_check(specs):
     """Validate the arguments; returns the arrays and the dims they bind."""
-    dims, owner, out, products = {}, {}, [], []
+    dims, owner, out, products = _GwDims(), {}, [], []
     for name, value, spec in specs:
         if isinstance(value, (str, bytes)) or value is None:
             raise TypeError(f"{name} must be a numeric array, got {type(value).__name__}")
@@ -61,14 +71,25 @@ def _gw_check(specs):
             else:
                 dims[d], owner[d] = n, (name, word)
         out.append(a)
-    for name, word, d, n in products:  # after every plain dim is bound
-        want = 1
-        for part in d.split("*"):
-            if not part.isdigit() and part not in dims:
-                raise ValueError(f"{name}: the size of dim {part} in {d} is not known")
-            want *= int(part) if part.isdigit() else dims[part]
-        if n != want:
-            raise ValueError(f"{name} has {n} {word} but {d} = {want}")
+    for _ in range(len(products)):  # after every plain dim is bound; a lone unknown is inferred
+        pending = []
+        for name, word, d, n in products:
+            want, unknown = 1, []
+            for part in d.split("*"):
+                if part.isdigit() or part in dims:
+                    want *= int(part) if part.isdigit() else dims[part]
+                else:
+                    unknown.append(part)
+            if not unknown:
+                if n != want:
+                    raise ValueError(f"{name} has {n} {word} but {d} = {want}")
+            elif len(unknown) == 1 and n % want == 0:
+                dims[unknown[0]], owner[unknown[0]] = n // want, (name, word)
+            else:
+                pending.append((name, word, d, n))
+        if len(pending) == len(products):
+            break  # what stays unknown is reported where a size is needed
+        products = pending
     return out, dims
 ''',
     "_gw_finite": """
