@@ -29,6 +29,8 @@ __all__ = [
     "jax_hessian",
     "jax_jacobian",
     "jax_jvp",
+    "jax_reference",
+    "UnreadableBlock",
     "jax_vjp",
     "jnp",
     "jax",
@@ -286,3 +288,111 @@ def run_over_shapes(check, template: str, kinds=("scalar", "vector", "matrix")):
             check(block)
         except AssertionError as err:
             raise AssertionError(f"[{kind}] {err}") from None
+
+
+# --- an independent reading of a block, for the reference library -----------------------------
+
+_JAX_FUNCS = {
+    "exp": lambda a: jnp.exp(a),
+    "log": lambda a: jnp.log(a),
+    "sqrt": lambda a: jnp.sqrt(a),
+    "sin": lambda a: jnp.sin(a),
+    "cos": lambda a: jnp.cos(a),
+    "tanh": lambda a: jnp.tanh(a),
+    "sigmoid": lambda a: jax.nn.sigmoid(a),
+    "softplus": lambda a: jax.nn.softplus(a),
+    "trace": lambda a: jnp.trace(a),
+    "det": lambda a: jnp.linalg.det(a),
+    "logdet": lambda a: jnp.linalg.slogdet(a)[1],
+    "inv": lambda a: jnp.linalg.inv(a),
+    "solve": lambda a, b: jnp.linalg.solve(a, b),
+    "kron": lambda a, b: jnp.kron(a, b),
+    "vec": lambda a: jnp.ravel(a, order="F"),
+    "diag": lambda a: jnp.diag(a),
+    "diagm": lambda a: jnp.diag(a),
+    "sum": lambda a: jnp.sum(a),
+    "norm": lambda a: jnp.sqrt(jnp.sum(a * a)),
+    "logsumexp": lambda a: jax.scipy.special.logsumexp(a),
+    "softmax": lambda a: jax.nn.softmax(a),
+    "outer": lambda a, b: jnp.outer(a, b),
+}
+
+
+class UnreadableBlock(Exception):
+    """The test-side reader cannot read the block (it is not in the language as NumPy reads it)."""
+
+
+def jax_reference(block_text: str, sizes: dict):
+    """Read a block as NumPy would compute it, with jax.numpy in place of NumPy.
+
+    Independent of gradwright's parser: Python's `ast` on each line, mapped to jnp calls
+    (test code reading test-generated text; nothing is eval'ed). Returns `ref(**arrays)`.
+    """
+    import ast
+    import re
+
+    defs: list[tuple[str, ast.AST]] = []
+    for raw in block_text.split("\n"):
+        line = raw.split("#", 1)[0].strip()
+        if not line:
+            continue
+        m = re.match(r"^([A-Za-z_]\w*)\s*=(?!=)\s*(.*)$", line)
+        if m:
+            defs.append((m.group(1), ast.parse(m.group(2), mode="eval").body))
+        elif not re.match(r"^[A-Za-z_]\w*\s*:", line):
+            raise UnreadableBlock(f"cannot read line {raw!r}")
+    if not defs:
+        raise UnreadableBlock("no target")
+
+    def dim(node):
+        if isinstance(node, ast.Constant):
+            return int(node.value)
+        if isinstance(node, ast.Name):
+            return sizes[node.id]
+        raise UnreadableBlock(f"not a dim: {ast.dump(node)}")
+
+    def ev(node, env):
+        if isinstance(node, ast.Constant):
+            return float(node.value)
+        if isinstance(node, ast.Name):
+            return env[node.id]
+        if isinstance(node, ast.UnaryOp) and isinstance(node.op, (ast.USub, ast.UAdd)):
+            v = ev(node.operand, env)
+            return -v if isinstance(node.op, ast.USub) else v
+        if isinstance(node, ast.Attribute) and node.attr == "T":
+            return jnp.transpose(ev(node.value, env))
+        if isinstance(node, ast.BinOp):
+            a, b = ev(node.left, env), ev(node.right, env)
+            op = type(node.op)
+            if op is ast.Add:
+                return a + b
+            if op is ast.Sub:
+                return a - b
+            if op is ast.Mult:
+                return a * b
+            if op is ast.Div:
+                return a / b
+            if op is ast.Pow:
+                return a**b
+            if op is ast.MatMult:
+                return a @ b
+        if isinstance(node, ast.Call) and isinstance(node.func, ast.Name):
+            name = node.func.id
+            if name in ("eye", "ones", "zeros"):
+                dims = [dim(a) for a in node.args]
+                if name == "eye":
+                    return jnp.eye(dims[0])
+                return (jnp.ones if name == "ones" else jnp.zeros)(tuple(dims))
+            if name == "mpow":
+                return jnp.linalg.matrix_power(ev(node.args[0], env), int(node.args[1].value))
+            if name in _JAX_FUNCS:
+                return _JAX_FUNCS[name](*[ev(a, env) for a in node.args])
+        raise UnreadableBlock(f"cannot read {ast.dump(node)[:80]}")
+
+    def ref(**arrays):
+        env = dict(arrays)
+        for name, node in defs:
+            env[name] = ev(node, env)
+        return env[defs[-1][0]]
+
+    return ref

@@ -1,0 +1,204 @@
+"""Property-based fuzzing of the whole engine (hypothesis strategies in tests/strategies.py).
+
+Random well-shaped blocks from the grammar, and near-valid mutations of them: the engine either
+derives a derivative that matches the reference library at a random point (JAX, reading the
+block independently, as NumPy would compute it; relative error <= 1e-7, points where the
+reference is not finite are skipped), or raises gradwright.FormulaError. Never a wrong number,
+never another exception.
+
+The default run fits CI. The 10x run is marked slow and needs GRADWRIGHT_SLOW=1:
+
+    GRADWRIGHT_SLOW=1 python -m pytest -m slow tests/test_fuzz.py
+
+Example counts are written to test-artifacts/fuzz-counts.json (and printed with -s).
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import warnings
+from collections import Counter
+from pathlib import Path
+
+import numpy as np
+import pytest
+from hypothesis import HealthCheck, event, given, settings
+
+from checks import (
+    UnreadableBlock,
+    jax_grad,
+    jax_jvp,
+    jax_reference,
+    jax_vjp,
+    project,
+    random_direction,
+    random_point,
+    rel_err,
+)
+from gradwright import FormulaError, derive
+from strategies import FUZZ_SIZES, blocks, mutants
+
+RTOL = 1e-7  # the property's bound on the relative error against the reference library
+CI_EXAMPLES = 150
+SLOW_FACTOR = 10
+COUNTS_FILE = Path(__file__).resolve().parents[1] / "test-artifacts" / "fuzz-counts.json"
+
+slow = [
+    pytest.mark.slow,
+    pytest.mark.skipif(
+        os.environ.get("GRADWRIGHT_SLOW") != "1",
+        reason="the 10x fuzzing run: GRADWRIGHT_SLOW=1 python -m pytest -m slow tests/test_fuzz.py",
+    ),
+]
+
+
+def known_bug(err: BaseException) -> str:
+    """The known engine bug (tests/core/ENGINE_BUGS.md) an exception is a symptom of, or ''.
+
+    Known bugs are counted, not failed on, so that the fuzzer keeps looking for new ones; each
+    has a strict-xfail reproduction in tests/core/test_engine_bugs.py.
+    """
+    msg = str(err)
+    if type(err).__name__ == "ShapeError" and "vec needs an array, got a scalar" in msg:
+        return "known engine bug 2/3 (ShapeError from vec of a scalar)"
+    if isinstance(err, KeyError) or "is not known from the arrays passed" in msg:
+        return "known engine bug 4 (a dim bound by no argument)"
+    return ""
+
+
+def _finite(*values) -> bool:
+    return all(np.all(np.isfinite(np.asarray(v, dtype=float))) for v in values)
+
+
+def check_block(b, counts: Counter) -> None:
+    """The property, for one drawn block. Updates `counts`."""
+    counts["examples"] += 1
+    try:
+        _check_block(b, counts)
+    except AssertionError:
+        raise
+    except Exception as err:
+        bug = known_bug(err)
+        if not bug:
+            raise
+        counts[bug] += 1
+        event(bug)
+
+
+def _check_block(b, counts: Counter) -> None:
+    try:
+        d = derive(b.text, wrt=list(b.wrt))
+        d.latex()  # the display is part of the derivation: it may refuse, never crash
+        d.text_steps()
+        if d.is_scalar:
+            fns = [d.gradient_function(v) for v in d.variables]
+        else:
+            fns = [(d.jvp_function(v), d.vjp_function(v)) for v in d.variables]
+        value_fn = d.function()
+    except FormulaError as err:
+        assert str(err).strip(), "a FormulaError with an empty message"
+        counts["refused (FormulaError)"] += 1
+        event("refused")
+        return
+    # the engine accepted the block: NumPy must be able to read and compute it too
+    try:
+        ref = jax_reference(b.text, FUZZ_SIZES)
+        arrays = random_point(d, 0, sizes=FUZZ_SIZES)
+        want_value = np.asarray(ref(**arrays))
+    except (UnreadableBlock, TypeError, ValueError) as err:
+        raise AssertionError(
+            f"the engine derived a block that NumPy cannot compute ({type(err).__name__}: "
+            f"{err})\n{b.text}\nwrt {b.wrt}"
+        ) from None
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)
+        got_value = value_fn(**arrays)
+    if not _finite(want_value):
+        counts["skipped (reference not finite)"] += 1
+        event("skipped: non-finite reference")
+        return
+    where = f"\n{b.text}\nwrt {b.wrt} ({b.mutation or 'valid'})"
+    assert np.shape(got_value) == np.shape(want_value), f"value shape{where}"
+    assert rel_err(got_value, want_value) <= RTOL, f"value differs{where}"
+    rng = np.random.default_rng(1)
+    if d.is_scalar:
+        wants = jax_grad(ref, arrays, d.variables)  # reference library: JAX
+        if not _finite(*wants):
+            counts["skipped (reference not finite)"] += 1
+            return
+        for v, fn, want in zip(d.variables, fns, wants):
+            want = project(want, d.symbols[v].structure)
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore", RuntimeWarning)
+                got = fn(**arrays)
+            err = rel_err(got, want)
+            assert err <= RTOL, f"gradient wrt {v}: relative error {err:.2e}{where}"
+    else:
+        for v, (jvp, vjp) in zip(d.variables, fns):
+            dx = random_direction(d.symbols[v], arrays[v], rng)
+            want = jax_jvp(ref, arrays, v, dx)  # reference library: JAX (jax.jvp)
+            cot = rng.standard_normal(np.shape(want_value))
+            want_t = project(jax_vjp(ref, arrays, v, cot), d.symbols[v].structure)  # JAX vjp
+            if not _finite(want, want_t):
+                counts["skipped (reference not finite)"] += 1
+                return
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore", RuntimeWarning)
+                got, got_t = jvp(dx, **arrays), vjp(cot, **arrays)
+            assert rel_err(got, want) <= RTOL, f"JVP wrt {v}{where}"
+            assert rel_err(got_t, want_t) <= RTOL, f"VJP wrt {v}{where}"
+    counts["derived and matched"] += 1
+    event("derived and matched")
+
+
+def _record(name: str, counts: Counter) -> None:
+    COUNTS_FILE.parent.mkdir(parents=True, exist_ok=True)
+    try:
+        data = json.loads(COUNTS_FILE.read_text())
+    except (OSError, ValueError):
+        data = {}
+    data[name] = dict(sorted(counts.items()))
+    COUNTS_FILE.write_text(json.dumps(data, indent=2, sort_keys=True) + "\n")
+    print(f"\n{name}: {dict(counts)}")
+
+
+def _run(strategy, n: int, name: str, derandomize: bool) -> Counter:
+    counts: Counter = Counter()
+
+    @settings(
+        max_examples=n,
+        deadline=None,
+        derandomize=derandomize,
+        report_multiple_bugs=False,
+        database=None,
+        suppress_health_check=[HealthCheck.too_slow, HealthCheck.data_too_large],
+    )
+    @given(strategy)
+    def prop(b):
+        check_block(b, counts)
+
+    prop()
+    _record(name, counts)
+    return counts
+
+
+def test_fuzz_valid_blocks():
+    counts = _run(blocks(), CI_EXAMPLES, "valid blocks (CI)", derandomize=True)
+    # valid blocks are well-shaped by construction: nearly all must be derived, not refused
+    assert counts["derived and matched"] >= 0.8 * counts["examples"], counts
+
+
+def test_fuzz_near_valid_mutations():
+    _run(mutants(), CI_EXAMPLES, "near-valid mutations (CI)", derandomize=True)
+
+
+@pytest.mark.parametrize("which", ["valid", "mutations"])
+@pytest.mark.slow
+@pytest.mark.skipif(
+    os.environ.get("GRADWRIGHT_SLOW") != "1",
+    reason="the 10x fuzzing run: GRADWRIGHT_SLOW=1 python -m pytest -m slow tests/test_fuzz.py",
+)
+def test_fuzz_slow(which):
+    strategy = blocks(max_depth=4) if which == "valid" else mutants(max_depth=3)
+    _run(strategy, SLOW_FACTOR * CI_EXAMPLES, f"{which} (slow, 10x)", derandomize=False)
