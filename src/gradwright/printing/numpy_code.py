@@ -169,15 +169,12 @@ def _gw_commutation(m, n):
 """,
     "_gw_kron_contract": """
 def _gw_kron_contract(g, other, rows, cols, side):
-    other2 = np.atleast_2d(other) if np.ndim(other) else np.reshape(other, (1, 1))
-    g2 = np.reshape(g, (-1, 1)) if np.ndim(g) == 1 else g
+    \"\"\"The adjoint of one factor of a Kronecker product (g and other are 2-D).\"\"\"
     if side == "left":
-        p, q = other2.shape
-        out = np.einsum("ikjl,kl->ij", g2.reshape(rows, p, cols, q), other2)
-    else:
-        m, n = other2.shape
-        out = np.einsum("ikjl,ij->kl", g2.reshape(m, rows, n, cols), other2)
-    return out
+        p, q = other.shape
+        return np.einsum("ikjl,kl->ij", g.reshape(rows, p, cols, q), other)
+    m, n = other.shape
+    return np.einsum("ikjl,ij->kl", g.reshape(m, rows, n, cols), other)
 """,
 }
 
@@ -625,10 +622,19 @@ class NumpyPrinter(TextPrinter):
         self.use("_gw_kron_contract")
         rows = self.dim(r) if r is not None else "1"
         cols = self.dim(c) if c is not None else "1"
-        out = f'_gw_kron_contract({self._print(g)}, {self._print(other)}, {rows}, {cols}, "{side}")'
+        out = f'_gw_kron_contract({self.as_2d(g)}, {self.as_2d(other)}, {rows}, {cols}, "{side}")'
         if E.is_vector_shape(e.shape):
             return f"{out}.reshape(-1)"
         return out
+
+    def as_2d(self, e: E.Expr) -> str:
+        """e as a 2-D array in its internal orientation (a 1-D vector as a column or a row)."""
+        text = self._print(e)
+        if E.is_matrix_shape(e.shape):
+            return text
+        r = self.dim(e.shape[0]) if e.shape[0] is not None else "1"
+        c = self.dim(e.shape[1]) if e.shape[1] is not None else "1"
+        return f"np.reshape({text}, ({r}, {c}))"
 
     def _print_Norm(self, e):
         return f"np.linalg.norm({self._print(e.args[0])})"
