@@ -324,3 +324,27 @@ def test_squaring_a_constant_forty_times():
         """,
         stages=["gradient", "latex", "source"],
     )
+
+
+# --- memory: a notebook re-runs cells for hours ---------------------------------------------
+
+
+@pytest.mark.xfail(
+    strict=True,
+    reason="functools.cache on Derivation methods keeps every derivation alive for the life of "
+    "the process (NEEDS_FROM_CORE.md: 'derivations are never freed')",
+)
+def test_a_derivation_is_freed_when_dropped():
+    import gc
+    import weakref
+
+    import gradwright
+
+    d = gradwright.derive("x: (n,)\nc: ()\nf = sum(tanh(x)) * c", wrt=["x", "c"])
+    d.latex()
+    d.text_steps()
+    d.gradient_function()(x=[0.5, 1.0], c=2.0)
+    ref = weakref.ref(d)
+    del d
+    gc.collect()
+    assert ref() is None
