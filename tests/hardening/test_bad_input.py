@@ -111,6 +111,11 @@ def test_multiline_expression_locates_the_inner_line():
         ({"A": ("n", 2.5)}, "a dim is a name or a positive integer"),
         ({"A": 3}, "a shape must be a tuple"),
         ({"A": ("n k",)}, "not a valid dim name"),
+        ({"A": ("n", "__class__")}, "may not start with '_'"),
+        ({"A": ("n", 10**30)}, "the dim is too large"),
+        ({"A": ("n", "lambda")}, "Python keyword"),
+        ({"A": ("n", "n"), "n": ()}, "already used as a dim"),
+        ({"n": (), "A": ("n", "n")}, "n is a symbol and cannot also be a dim"),
     ],
 )
 def test_bad_shapes_mapping(shapes, expected):
@@ -163,3 +168,21 @@ def test_error_pickles_and_is_a_value_error():
     again = pickle.loads(pickle.dumps(info.value))
     assert str(again) == str(info.value) and isinstance(again, ValueError)
     assert gradwright.NotSupportedError.__mro__[1] is FormulaError
+
+
+def test_numpy_integers_are_dims():
+    import numpy as np
+
+    d = derive("trace(A)", wrt="A", shapes={"A": (np.int64(3), np.int32(3))})
+    assert d.target_shape == ()
+
+
+@pytest.mark.xfail(
+    strict=True,
+    raises=AttributeError,
+    reason="derive() calls sizes.items() without checking that sizes is a mapping "
+    "(NEEDS_FROM_CORE.md: 'smaller points')",
+)
+def test_sizes_that_is_not_a_mapping():
+    with pytest.raises(FormulaError, match="sizes"):
+        derive("X: (n,)\nf = sum(X)", wrt="X", sizes="n=3")

@@ -215,3 +215,20 @@ def test_broadcast_scalar_in_a_distributed_product(block, wrt):
     arrays = d.sample_inputs(seed=0)
     reference = evaluate(parse_block(block).expr, arrays)
     np.testing.assert_allclose(d.function()(**arrays), reference)
+
+
+@pytest.mark.xfail(
+    strict=True,
+    raises=KeyError,
+    reason="a target that depends on its symbols only through their dims (sum(ones(n, n)), "
+    "trace(mpow(X, 0))) generates functions without the arguments that fix the dims, and they "
+    "fail with KeyError (NEEDS_FROM_CORE.md: 'smaller points')",
+)
+@pytest.mark.parametrize(
+    "target", ["sum(ones(n, n))", "trace(mpow(X, 0))", "norm(eye(n))", "sum(X ** 0)"]
+)
+def test_targets_that_depend_on_dims_only(target):
+    d = derive(f"X: (n, n)\nf = {target}", wrt="X")
+    value = d.function()(X=np.ones((3, 3)))
+    assert value == pytest.approx({"sum(ones(n, n))": 9, "trace(mpow(X, 0))": 3,
+                                   "norm(eye(n))": 3**0.5, "sum(X ** 0)": 9}[target])  # fmt: skip

@@ -9,6 +9,7 @@ import ast
 import builtins
 import difflib
 import keyword
+import numbers
 import re
 from dataclasses import dataclass, field
 from fractions import Fraction
@@ -553,17 +554,30 @@ class _Reader:
                 self.source_lines = [f"{name}: {spec}"]
                 self.check_name(name, None, 0)
                 dims, words = parse_shape_spec(spec)
+                read = []
                 for d in dims:
-                    if isinstance(d, bool) or not isinstance(d, (int, str)):
+                    if isinstance(d, numbers.Integral) and not isinstance(d, bool):
+                        d = int(d)  # NumPy integers (a.shape[0]) are integers too
+                    if isinstance(d, bool) or not isinstance(d, (int, str, E.Dim)):
                         raise FormulaError(f"a dim is a name or a positive integer, got {d!r}")
                     if isinstance(d, int) and d <= 0:
                         raise FormulaError(f"dims must be positive, got {d}")
+                    if isinstance(d, int) and d.bit_length() > 62:
+                        raise FormulaError("the dim is too large")
                     if isinstance(d, str) and not d.isidentifier():
                         raise FormulaError(f"{d!r} is not a valid dim name")
+                    if isinstance(d, str):
+                        self.check_name(d, None, 0, what="dim")
+                        if d in self.env:
+                            raise FormulaError(f"{d} is a symbol and cannot also be a dim")
+                    read.append(d)
+                dims = tuple(read)
                 if len(dims) > 2:
                     raise NotSupportedError(f"not supported yet: arrays with {len(dims)} axes")
                 if name in self.env:
                     raise FormulaError(f"{name} is declared twice")
+                if name in self.block.dims:
+                    raise FormulaError(f"{name} is already used as a dim name")
                 self.add_symbol(name, list(dims), words, None, 0)
             except FormulaError as err:
                 raise type(err)(f"in shapes[{name!r}]: {err.reason}") from None
