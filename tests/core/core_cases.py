@@ -65,20 +65,6 @@ def params(cases, kind="reference"):
     return out
 
 
-BUG_KRON_TANH = (
-    "the Kronecker form of d tanh(X) for a matrix X raises the internal ShapeError "
-    "'vec needs an array, got a scalar' (from jacobian() and from steps)"
-)
-BUG_STEPS_SCALAR_VAR = (
-    "the steps of an array target with a scalar variable c raise the internal ShapeError "
-    "'vec needs an array, got a scalar' (the vec(dF) line builds vec(dc))"
-)
-BUG_SUM_BROADCAST = (
-    "sum(X + c) with a scalar c added to every entry of an array X is read as sum(X) + c "
-    "instead of sum(X) + size(X) * c (value and gradient wrong)"
-)
-
-
 G: list[Case] = []
 
 # --- entrywise functions, sums, scalar multiples: over scalar, vector and matrix variables -------
@@ -126,15 +112,8 @@ for kind, block in over_shapes(_ENTRYWISE[10][1]):
 for kind, block in over_shapes(_ENTRYWISE[14][1]):
     G.append(_c(f"power-symbol-exponent-{kind}", block, "X c", _ENTRYWISE[14][2]))
 for kind, block in over_shapes("X: {shape}\nc: ()\nf = sum((X - c) ** 2) * c"):
-    bug = BUG_SUM_BROADCAST if kind != "scalar" else ""
     G.append(
-        _c(
-            f"scalar-broadcast-{kind}",
-            block,
-            "c X",
-            lambda X, c, **_: jnp.sum((X - c) ** 2) * c,
-            xfail=bug,
-        )
+        _c(f"scalar-broadcast-{kind}", block, "c X", lambda X, c, **_: jnp.sum((X - c) ** 2) * c)
     )
 for kind, block in over_shapes("X: {shape}\nc: ()\nf = sum(X + c) + sum(1 - X * c)", ("vector", "matrix")):  # fmt: skip
     G.append(
@@ -143,7 +122,6 @@ for kind, block in over_shapes("X: {shape}\nc: ()\nf = sum(X + c) + sum(1 - X * 
             block,
             "c X",
             lambda X, c, **_: jnp.sum(X + c) + jnp.sum(1 - X * c),
-            xfail=BUG_SUM_BROADCAST,
         )
     )
 
@@ -257,11 +235,5 @@ NO_KRONECKER_FORM = {"map-kron", "map-diag", "map-diagm"}
 
 #: (case id, kind of check) -> the engine bug that makes it fail; kinds: "kronecker" (the
 #: compact Jacobian), "steps" (building the steps at all), "steps-equal" (consecutive steps agree)
-KNOWN_BUGS = {
-    ("map-entrywise-tanh", "kronecker"): BUG_KRON_TANH,
-    ("map-entrywise-tanh", "steps"): BUG_KRON_TANH,
-    ("map-scalar-times-matrix", "steps"): BUG_STEPS_SCALAR_VAR,
-    ("map-power", "steps"): BUG_STEPS_SCALAR_VAR,
-    ("scalar-broadcast-vector", "steps-equal"): BUG_SUM_BROADCAST,
-    ("scalar-broadcast-matrix", "steps-equal"): BUG_SUM_BROADCAST,
-}
+#: (bugs 1-3 of ENGINE_BUGS.md were listed here until they were fixed)
+KNOWN_BUGS: dict[tuple[str, str], str] = {}

@@ -1,7 +1,7 @@
 """Minimal reproductions of engine bugs found by the core suites (see ENGINE_BUGS.md).
 
-Each is xfail(strict=True): when the engine is fixed, the test passes, strict turns that into
-a failure, and the marker (and the entry in ENGINE_BUGS.md) should be removed.
+Open bugs are xfail(strict=True): when the engine is fixed the test passes, strict turns that
+into a failure, and the marker should be removed. Fixed bugs stay here as regression tests.
 """
 
 from __future__ import annotations
@@ -13,8 +13,8 @@ from checks import assert_close
 from gradwright import derive
 
 
-@pytest.mark.xfail(strict=True, reason="engine bug 1: sum(X + c) is read as sum(X) + c")
 def test_sum_of_array_plus_broadcast_scalar():
+    """Regression: bug 1 (fixed)."""
     d = derive("X: (n,)\nc: ()\nf = sum(X + c)", wrt="c")
     X = np.array([0.0, 1.0, 2.0])
     # NumPy's own meaning of the same line: the scalar is added to each of the 3 entries
@@ -22,22 +22,52 @@ def test_sum_of_array_plus_broadcast_scalar():
     assert_close(d.gradient_function("c")(X=X, c=0.5), 3.0, 1e-14, what="d/dc")
 
 
-@pytest.mark.xfail(strict=True, reason="engine bug 1: sum(X - c) loses the entry count")
 def test_gradient_of_squared_deviation_from_a_scalar():
+    """Regression: bug 1 (fixed)."""
     d = derive("X: (n,)\nc: ()\nf = sum((X - c) ** 2)", wrt="c")
     X = np.array([0.0, 1.0, 2.0])
     # d/dc sum((x_i - c)^2) = -2 sum(x_i - c)
     assert_close(d.gradient_function("c")(X=X, c=0.5), -2 * np.sum(X - 0.5), 1e-14)
 
 
-@pytest.mark.xfail(strict=True, raises=Exception, reason="engine bug 2: ShapeError from tanh")
 def test_kronecker_form_of_tanh_of_a_matrix():
+    """Regression: bug 2 (fixed)."""
     d = derive("X: (m, n)\nF = tanh(X)", wrt="X")
     d.jacobian("X")
     assert d.steps
 
 
-@pytest.mark.xfail(strict=True, raises=Exception, reason="engine bug 3: ShapeError in steps")
 def test_steps_of_an_array_target_with_a_scalar_variable():
+    """Regression: bug 3 (fixed)."""
     d = derive("c: ()\nX: (m, n)\nF = c * X", wrt="c")
     assert d.steps
+
+
+@pytest.mark.xfail(strict=True, raises=KeyError, reason="engine bug 4: KeyError 'n' in code")
+def test_gradient_of_a_target_that_simplifies_to_a_constant():
+    d = derive("x: (n,)\nf = sum(x - x)", wrt="x")
+    assert_close(d.gradient_function("x")(x=np.ones(3)), np.zeros(3), 0.0)
+
+
+@pytest.mark.xfail(strict=True, raises=ValueError, reason="engine bug 4: dim n never bound")
+def test_value_with_a_dim_bound_only_by_an_unused_symbol():
+    d = derive("c: ()\nx: (n,)\nf = c * sum(ones(n))", wrt="c")
+    # x fixes n = 3; the function should accept it (or derive() should refuse the block)
+    assert_close(d.function()(c=2.0, x=np.ones(3)), 6.0, 1e-15)
+
+
+def test_gradient_wrt_the_second_vector_of_a_kronecker_product():
+    """Regression: bug 5 (fixed)."""
+    d = derive("x: (n,)\ny: (k,)\nf = sum(kron(x, y) ** 2)", wrt="y")
+    x, y = np.array([1.0, 2.0, 3.0]), np.array([1.0, -1.0])
+    # sum((x_i y_j)^2) = |x|^2 |y|^2, so the gradient is 2 |x|^2 y = [28, -28]
+    assert_close(d.gradient_function("y")(x=x, y=y), 2 * (x @ x) * y, 1e-14)
+
+
+@pytest.mark.xfail(strict=True, raises=NameError, reason="engine bug 6: return _point")
+def test_stationary_point_function_runs():
+    d = derive("X: (n, p)\nw: (p,)\ny: (n,)\nf = sum((X @ w - y)**2)", wrt="w")
+    X = np.array([[1.0, 0.0], [0.0, 2.0], [1.0, 1.0]])
+    y = np.array([1.0, 2.0, 3.0])
+    got = d.stationary_point("w").function()(X=X, y=y)
+    assert_close(got, np.linalg.lstsq(X, y, rcond=None)[0], 1e-12)

@@ -154,13 +154,8 @@ def test_hvp_and_hessian_match_jax(case):
     assert_close(hv, ref, 1e-7, what=f"{case.id}: Hessian-vector product")
 
 
-@pytest.mark.xfail(
-    strict=True,
-    raises=Exception,
-    reason="engine bug: "
-    + bug_reason(next(c for c in JACOBIAN_CASES if c.id == "map-entrywise-tanh"), "kronecker"),
-)
 def test_minimal_kronecker_form_of_entrywise_tanh():
+    """Regression: ENGINE_BUGS.md bug 2 (fixed)."""
     d = derive("X: (m, n)\nF = tanh(X)", wrt="X")
     arrays = random_point(d, 0)
     want = np.diag(vec(1 - np.tanh(arrays["X"]) ** 2))  # d tanh = (1 - tanh^2) dX, entrywise
