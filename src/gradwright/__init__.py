@@ -61,9 +61,16 @@ def derive(text: str, wrt, *, shapes: dict | None = None, sizes: dict | None = N
         if w in seen:
             raise FormulaError(f"variable {w} is named twice")
         if w in block.definitions:
+            line = block.lines.get(w)
+            src = block.text.split("\n")[line - 1] if line else None
+            col = src.find(w) + 1 if src else None
             raise FormulaError(
                 f"{w} is defined in the block, not declared: derivatives are taken with respect "
-                "to declared symbols"
+                "to declared symbols",
+                line=line if src else None,
+                column=col if src and col > 0 else None,
+                source_line=src,
+                width=len(w),
             )
         if w not in block.declarations:
             known = ", ".join(block.declarations) or "none"

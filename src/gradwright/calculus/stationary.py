@@ -44,7 +44,7 @@ class StationaryPoint:
             f"The closed-form stationary point of {d.target} in {self.var} ({self.how}).",
             [
                 C.Output(
-                    "point",
+                    "_point",
                     C.lower(self.expression, cost),
                     self.expression.shape,
                     "the stationary point",

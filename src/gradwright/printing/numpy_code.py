@@ -341,7 +341,9 @@ def _distribute(m: E.MatMul, cost: CostModel, free, go) -> E.Expr:
         if type(body) is not E.Add or f in free:
             continue
         factored = cost.flops(m, free)
-        terms = [E.matmul(*fs[:i], t, *fs[i + 1 :]) for t in body.args]
+        # a scalar term of a broadcast sum is c * ones(shape) inside a product
+        parts = [E.mul(t, E.Ones(body.shape)) if t.is_scalar else t for t in body.args]
+        terms = [E.matmul(*fs[:i], t, *fs[i + 1 :]) for t in parts]
         distributed = sum(cost.flops(t, free) for t in terms) + cost.size(m.shape) * len(terms)
         if distributed < 0.8 * factored:
             return go(E.add(*terms))
