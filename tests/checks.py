@@ -8,6 +8,7 @@ over scalar, vector and matrix shapes.
 
 from __future__ import annotations
 
+import functools
 import os
 
 import numpy as np
@@ -206,64 +207,90 @@ def _as_jax(arrays: dict) -> dict:
     return {k: jnp.asarray(v, dtype=jnp.float64) for k, v in arrays.items()}
 
 
-def jax_grad(ref, arrays: dict, variables) -> tuple:
-    """Gradients of the scalar `ref(**arrays)` w.r.t. `variables`, as NumPy arrays, in order."""
+def _split(arrays: dict, variables) -> tuple[dict, dict]:
     a = _as_jax(arrays)
-    consts = {k: v for k, v in a.items() if k not in variables}
+    return {v: a[v] for v in variables}, {k: x for k, x in a.items() if k not in variables}
 
-    def fn(vs):
+
+# compiled once per reference function and variable (then reused across seeds and tests)
+
+
+@functools.cache
+def _grad_fn(ref, variables: tuple):
+    def fn(vs, consts):
         return ref(**consts, **vs)
 
-    g = jax.jit(jax.grad(fn))({v: a[v] for v in variables})
-    return tuple(np.asarray(g[v]) for v in variables)
+    return jax.jit(jax.grad(fn))
 
 
-def _vec_function(ref, arrays: dict, var: str):
-    a = _as_jax(arrays)
-    shape = np.shape(arrays[var])
-
-    def fv(x):
-        xs = dict(a)
+def _vec_fn(ref, var: str, shape: tuple):
+    def fv(x, consts):
+        xs = dict(consts)
         xs[var] = x.reshape(shape, order="F") if shape else x.reshape(())
         return jnp.ravel(jnp.asarray(ref(**xs)), order="F")
 
-    return fv, jnp.ravel(a[var], order="F")
+    return fv
+
+
+@functools.cache
+def _jac_fn(ref, var: str, shape: tuple):
+    return jax.jit(jax.jacfwd(_vec_fn(ref, var, shape)))
+
+
+@functools.cache
+def _hess_fn(ref, var: str, shape: tuple):
+    fv = _vec_fn(ref, var, shape)
+    return jax.jit(jax.hessian(lambda x, consts: fv(x, consts)[0]))
+
+
+@functools.cache
+def _jvp_fn(ref, var: str):
+    def tangent(x, v, consts):
+        return jax.jvp(lambda y: ref(**consts, **{var: y}), (x,), (v,))[1]
+
+    return jax.jit(tangent)
+
+
+@functools.cache
+def _vjp_fn(ref, var: str):
+    def pullback(x, g, consts):
+        return jax.vjp(lambda y: ref(**consts, **{var: y}), x)[1](g)[0]
+
+    return jax.jit(pullback)
+
+
+def jax_grad(ref, arrays: dict, variables) -> tuple:
+    """Gradients of the scalar `ref(**arrays)` w.r.t. `variables`, as NumPy arrays, in order."""
+    variables = tuple(variables)
+    vs, consts = _split(arrays, variables)
+    g = _grad_fn(ref, variables)(vs, consts)
+    return tuple(np.asarray(g[v]) for v in variables)
 
 
 def jax_jacobian(ref, arrays: dict, var: str) -> np.ndarray:
     """d vec(F) / d vec(X)^T by forward mode on the column-major vec'ed function."""
-    fv, x0 = _vec_function(ref, arrays, var)
-    return np.asarray(jax.jit(jax.jacfwd(fv))(x0))
+    vs, consts = _split(arrays, (var,))
+    shape = tuple(np.shape(arrays[var]))
+    return np.asarray(_jac_fn(ref, var, shape)(jnp.ravel(vs[var], order="F"), consts))
 
 
 def jax_jvp(ref, arrays: dict, var: str, direction) -> np.ndarray:
-    a = _as_jax(arrays)
-
-    def fn(x):
-        return ref(**{**a, var: x})
-
-    def tangent(x, v):
-        return jax.jvp(fn, (x,), (v,))[1]
-
-    return np.asarray(jax.jit(tangent)(a[var], jnp.asarray(direction, dtype=jnp.float64)))
+    vs, consts = _split(arrays, (var,))
+    v = jnp.asarray(direction, dtype=jnp.float64)
+    return np.asarray(_jvp_fn(ref, var)(vs[var], v, consts))
 
 
 def jax_vjp(ref, arrays: dict, var: str, cotangent) -> np.ndarray:
-    a = _as_jax(arrays)
-
-    def fn(x):
-        return ref(**{**a, var: x})
-
-    def pullback(x, g):
-        return jax.vjp(fn, x)[1](g)[0]
-
-    return np.asarray(jax.jit(pullback)(a[var], jnp.asarray(cotangent, dtype=jnp.float64)))
+    vs, consts = _split(arrays, (var,))
+    g = jnp.asarray(cotangent, dtype=jnp.float64)
+    return np.asarray(_vjp_fn(ref, var)(vs[var], g, consts))
 
 
 def jax_hessian(ref, arrays: dict, var: str) -> np.ndarray:
     """The dense Hessian of a scalar `ref` over column-major vec(var)."""
-    fv, x0 = _vec_function(ref, arrays, var)
-    return np.asarray(jax.jit(jax.hessian(lambda x: fv(x)[0]))(x0))
+    vs, consts = _split(arrays, (var,))
+    shape = tuple(np.shape(arrays[var]))
+    return np.asarray(_hess_fn(ref, var, shape)(jnp.ravel(vs[var], order="F"), consts))
 
 
 # --- the combinator -----------------------------------------------------------------------------

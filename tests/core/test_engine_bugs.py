@@ -43,13 +43,13 @@ def test_steps_of_an_array_target_with_a_scalar_variable():
     assert d.steps
 
 
-@pytest.mark.xfail(strict=True, raises=KeyError, reason="engine bug 4: KeyError 'n' in code")
 def test_gradient_of_a_target_that_simplifies_to_a_constant():
+    """Regression: bug 4a (fixed)."""
     d = derive("x: (n,)\nf = sum(x - x)", wrt="x")
     assert_close(d.gradient_function("x")(x=np.ones(3)), np.zeros(3), 0.0)
 
 
-@pytest.mark.xfail(strict=True, raises=ValueError, reason="engine bug 4: dim n never bound")
+@pytest.mark.xfail(strict=True, raises=ValueError, reason="engine bug 4b: dim n never bound")
 def test_value_with_a_dim_bound_only_by_an_unused_symbol():
     d = derive("c: ()\nx: (n,)\nf = c * sum(ones(n))", wrt="c")
     # x fixes n = 3; the function should accept it (or derive() should refuse the block)
@@ -64,8 +64,8 @@ def test_gradient_wrt_the_second_vector_of_a_kronecker_product():
     assert_close(d.gradient_function("y")(x=x, y=y), 2 * (x @ x) * y, 1e-14)
 
 
-@pytest.mark.xfail(strict=True, raises=NameError, reason="engine bug 6: return _point")
 def test_stationary_point_function_runs():
+    """Regression: bug 6 (fixed)."""
     d = derive("X: (n, p)\nw: (p,)\ny: (n,)\nf = sum((X @ w - y)**2)", wrt="w")
     X = np.array([[1.0, 0.0], [0.0, 2.0], [1.0, 1.0]])
     y = np.array([1.0, 2.0, 3.0])

@@ -20,11 +20,6 @@ GLS = (
 )
 GAUSS = "S: (n, n) spd\nZ: (N, n)\nm: ()\nf = m * logdet(S) + trace(solve(S, Z.T @ Z))"
 
-# ENGINE_BUGS.md bug 6: the generated stationary-point function returns an undefined `_point`
-BUG_6 = pytest.mark.xfail(
-    strict=True, raises=NameError, reason="engine bug 6: stationary function returns _point"
-)
-
 SIZES = {"n": 12, "p": 4, "k": 3, "N": 40}
 
 
@@ -80,7 +75,6 @@ def test_gradient_vanishes_at_the_published_closed_form(name, block, var, closed
         assert np.linalg.norm(g(**{**a, var: bumped})) >= 1e-4 * at_data, name
 
 
-@BUG_6
 @pytest.mark.parametrize("name, block, var, closed", CASES, ids=[c[0] for c in CASES])
 def test_stationary_point_reproduces_the_closed_form(name, block, var, closed):
     d = derive(block, wrt=var)
@@ -181,7 +175,6 @@ def test_longley_gradient_vanishes_at_the_certified_coefficients(longley):
     assert np.isclose(d.function()(X=X, b=LONGLEY_CERTIFIED, y=y), 836424.055505915, rtol=1e-9)
 
 
-@BUG_6
 def test_longley_stationary_point_is_the_certified_fit(longley):
     X, y = longley
     d = derive("X: (n, p)\nb: (p,)\ny: (n,)\nf = sum((X @ b - y)**2)", wrt="b")
