@@ -7,6 +7,7 @@ from __future__ import annotations
 
 import re
 import sys
+import time
 from pathlib import Path
 
 import pytest
@@ -42,8 +43,10 @@ def test_corpus_is_large_and_ids_unique():
 @pytest.mark.parametrize(("block", "wrt", "expected", "line", "column"),
                          [c[1:] for c in CORPUS], ids=[c[0] for c in CORPUS])  # fmt: skip
 def test_bad_block(block, wrt, expected, line, column):
+    start = time.perf_counter()
     with pytest.raises(FormulaError) as info:
         derive(block, wrt=wrt)
+    assert time.perf_counter() - start < 2.0
     err = info.value
     assert expected in err.reason, err.reason
     assert (err.line, err.column) == (line, column), str(err)
@@ -186,3 +189,58 @@ def test_numpy_integers_are_dims():
 def test_sizes_that_is_not_a_mapping():
     with pytest.raises(FormulaError, match="sizes"):
         derive("X: (n,)\nf = sum(X)", wrt="X", sizes="n=3")
+
+
+# odd but small text: each is derived or refused with a FormulaError, nothing else
+ODD = [
+    "A: (n, n)\r\nf = trace(A)\r\n",
+    "A: (n, n)\n\x0cf = trace(A)",
+    "A: (n, n)\nf = trace(A) * 10**400",
+    "A: (n, n)\nf = trace(A) ** 1e300",
+    "A: (n, n)\nf = sum(A ** -1)",
+    "A: (n, n)\nf = sum(A) ** 10000000",
+    "A: (n, n)\nf = trace(A) * 1.5e-400",
+    "A: (n, n)\nf = trace(A) * (1/3)**100000",
+    "A: (n, n)\nf = trace(A) * 2**-100000",
+    "A: (n, n)\nf = trace(A) + " + " + ".join(f"1/{p}" for p in range(2, 1500)),
+    "match A:\n case 1: pass",
+    "async def f(): pass",
+    ":",
+    "A:",
+    "A: int = 3\nf = 1",
+    "A: trace(B)\nf = 1",
+    "A: [n, n]\nf = trace(A)",
+    "A: (f(n), n)\nf = 1",
+    "A: (n*0, n)\nf = 1",
+    "A: (n, n)\nf = = = trace(A)",
+    "A: (n, n)\nf = trace(A" + ".T" * 100 + ")",
+    "A: (n, n)\nf = " + "{" * 150 + "}" * 150,
+    "A: (n, n)\nf = " + "lambda: " * 500 + "1",
+    "A: (n, n)\nf = trace(d(A))",
+    "A: (n, n)\nf = trace(A)\n\n\n# trailing comment\n   \n",
+    "A: (n, n)\n    # an indented comment\nf = trace(A)",
+    "A: (n, n)\nf = (trace(A)  # open bracket, comment\n)",
+    "A: (n, n)\nf = trace(A)\n)",
+    "A: (n, n)\nf = trace(A)\n(",
+    "A: (n, n)\nf = trace((A)\ng = 1",
+    "A: (n, n)\nf = trace(A) \\\n\n + 1",
+    "A: (n, n) spd\nf = logdet(A) + trace(inv(A)) + det(A) ** 0.5",
+    "A: (n, n)\nT = A\nf = trace(T)",
+    "A: (n, n)\nf = trace(A.T.T)\nf2 = f",
+    "A: (n, n)\nf = trace(A)\nA: (n, n)",
+    "\n".join(f"X{i}: (n, n)" for i in range(500)) + "\nf = trace(X499)",
+]
+
+
+@pytest.mark.parametrize("block", ODD, ids=[f"odd{i}" for i in range(len(ODD))])
+def test_odd_text_is_derived_or_refused(block):
+    start = time.perf_counter()
+    wrt = "X499" if "X499" in block else "A"
+    try:
+        d = derive(block, wrt=wrt)
+    except FormulaError as err:
+        assert err.reason
+    else:
+        d.latex()
+        d.source()
+    assert time.perf_counter() - start < 2.0

@@ -329,11 +329,6 @@ def test_squaring_a_constant_forty_times():
 # --- memory: a notebook re-runs cells for hours ---------------------------------------------
 
 
-@pytest.mark.xfail(
-    strict=True,
-    reason="functools.cache on Derivation methods keeps every derivation alive for the life of "
-    "the process (NEEDS_FROM_CORE.md: 'derivations are never freed')",
-)
 def test_a_derivation_is_freed_when_dropped():
     import gc
     import weakref

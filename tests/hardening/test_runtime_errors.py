@@ -185,20 +185,11 @@ def test_product_dims_are_inferred_or_checked():
 
 
 def test_a_dim_no_argument_fixes_is_named():
-    d = derive("X: (m, n)\ny: (m*n,)\nF = outer(vec(y), y) @ commutation(m, n)", wrt="X")
+    d = derive("x: (k,)\ny: (m*n,)\nF = sum(x) * (commutation(m, n) @ y)", wrt="x")
     with pytest.raises(ValueError, match=r"^the size of dim m is not known from the arrays"):
-        d.function()(y=np.ones(6))
+        d.function()(x=np.ones(2), y=np.ones(6))
 
 
-BROADCAST_DISTRIBUTED = pytest.mark.xfail(
-    strict=True,
-    raises=Exception,
-    reason="the code generator distributes a product over a sum holding a broadcast scalar "
-    "and builds an invalid node (NEEDS_FROM_CORE.md: 'distribute over broadcast sums')",
-)
-
-
-@BROADCAST_DISTRIBUTED
 @pytest.mark.parametrize(
     ("block", "wrt"),
     [
@@ -217,13 +208,6 @@ def test_broadcast_scalar_in_a_distributed_product(block, wrt):
     np.testing.assert_allclose(d.function()(**arrays), reference)
 
 
-@pytest.mark.xfail(
-    strict=True,
-    raises=KeyError,
-    reason="a target that depends on its symbols only through their dims (sum(ones(n, n)), "
-    "trace(mpow(X, 0))) generates functions without the arguments that fix the dims, and they "
-    "fail with KeyError (NEEDS_FROM_CORE.md: 'smaller points')",
-)
 @pytest.mark.parametrize(
     "target", ["sum(ones(n, n))", "trace(mpow(X, 0))", "norm(eye(n))", "sum(X ** 0)"]
 )
