@@ -35,8 +35,10 @@ from checks import (
     random_direction,
     random_point,
     rel_err,
+    vec,
 )
 from gradwright import FormulaError, derive
+from gradwright.evaluate import evaluate
 from strategies import FUZZ_SIZES, blocks, mutants
 
 RTOL = 1e-7  # the property's bound on the relative error against the reference library
@@ -157,6 +159,47 @@ def _check_block(b, counts: Counter) -> None:
     event("derived and matched")
 
 
+STEP_RTOL = 1e-5  # d(...) in early steps is a finite difference in the reference evaluator
+
+
+def check_steps(b, counts: Counter) -> None:
+    """Every "differential" step of a random block's derivation equals the one before it."""
+    counts["examples"] += 1
+    try:
+        d = derive(b.text, wrt=list(b.wrt))
+        steps = d.steps
+    except FormulaError:
+        counts["refused (FormulaError)"] += 1
+        return
+    arrays = random_point(d, 0, sizes=FUZZ_SIZES)
+    rng = np.random.default_rng(2)
+    diffs = {v: random_direction(d.symbols[v], arrays[v], rng) for v in d.variables}
+    prev = None
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)
+        for i, step in enumerate(steps):
+            if step.kind != "differential":
+                continue
+            value = np.asarray(
+                evaluate(step.expr, arrays, differentials=diffs, dims=FUZZ_SIZES), dtype=float
+            )
+            if not _finite(value):
+                counts["skipped (not finite)"] += 1
+                return
+            if step.lhs_latex.startswith(r"\operatorname{vec}"):
+                value, want = value.reshape(-1), vec(prev)
+            else:
+                want = prev
+            if prev is not None:
+                scale = max(np.linalg.norm(value), np.linalg.norm(want), 1e-8)
+                assert np.linalg.norm(value - want) <= STEP_RTOL * scale, (
+                    f"step {i} [{step.rule}] differs from the one before\n{b.text}\n"
+                    f"wrt {b.wrt}\n  {step.text()}\n  previous: {steps[i - 1].text()}"
+                )
+            prev = value
+    counts["steps all equal"] += 1
+
+
 def _record(name: str, counts: Counter) -> None:
     COUNTS_FILE.parent.mkdir(parents=True, exist_ok=True)
     try:
@@ -168,7 +211,7 @@ def _record(name: str, counts: Counter) -> None:
     print(f"\n{name}: {dict(counts)}")
 
 
-def _run(strategy, n: int, name: str, derandomize: bool) -> Counter:
+def _run(strategy, n: int, name: str, derandomize: bool, check=check_block) -> Counter:
     counts: Counter = Counter()
 
     @settings(
@@ -181,7 +224,7 @@ def _run(strategy, n: int, name: str, derandomize: bool) -> Counter:
     )
     @given(strategy)
     def prop(b):
-        check_block(b, counts)
+        check(b, counts)
 
     prop()
     _record(name, counts)
@@ -198,12 +241,19 @@ def test_fuzz_near_valid_mutations():
     _run(mutants(), CI_EXAMPLES, "near-valid mutations (CI)", derandomize=True)
 
 
-@pytest.mark.parametrize("which", ["valid", "mutations"])
+def test_fuzz_displayed_steps_of_valid_blocks():
+    counts = _run(blocks(), CI_EXAMPLES, "steps of valid blocks (CI)", True, check_steps)
+    assert counts["steps all equal"] >= 0.8 * counts["examples"], counts
+
+
+@pytest.mark.parametrize("which", ["valid", "mutations", "steps"])
 @pytest.mark.slow
 @pytest.mark.skipif(
     os.environ.get("GRADWRIGHT_SLOW") != "1",
     reason="the 10x fuzzing run: GRADWRIGHT_SLOW=1 python -m pytest -m slow tests/test_fuzz.py",
 )
 def test_fuzz_slow(which):
-    strategy = blocks(max_depth=4) if which == "valid" else mutants(max_depth=3)
-    _run(strategy, SLOW_FACTOR * CI_EXAMPLES, f"{which} (slow, 10x)", derandomize=False)
+    strategy = mutants(max_depth=3) if which == "mutations" else blocks(max_depth=4)
+    n = SLOW_FACTOR * CI_EXAMPLES
+    check = check_steps if which == "steps" else check_block
+    _run(strategy, n, f"{which} (slow, 10x)", derandomize=False, check=check)

@@ -13,7 +13,14 @@ import numpy as np
 import pytest
 from core_cases import GRADIENT_CASES, params
 
-from checks import assert_close, central_difference_check, jax_grad, project, random_point
+from checks import (
+    assert_close,
+    central_difference_check,
+    jax_grad,
+    project,
+    random_point,
+    run_over_shapes,
+)
 from gradwright import derive
 
 RTOL = 1e-8  # the issue's bound on the relative error against the reference library
@@ -85,3 +92,26 @@ def test_central_differences_along_random_directions(case):
 
     for fd, an in central_difference_check(along, arrays[v], g, n_dirs=3, seed=4):
         assert abs(fd - an) <= 1e-6 * max(1.0, abs(an)), (fd, an)
+
+
+@pytest.mark.parametrize(
+    "template",
+    [
+        "X: {shape}\nY: {shape}\nf = sum(sigmoid(X) * Y) + sum((X * Y) ** 2) * sum(Y)",
+        "X: {shape} positive\nc: ()\nf = sum(log(X) / (1 + c ** 2)) + sum(X ** 1.5)",
+    ],
+)
+def test_central_differences_over_scalar_vector_and_matrix_shapes(template):
+    """The shared combinator: one finite-difference check run at each kind of shape."""
+
+    def check(block):
+        d = derive(block, wrt="X")
+        arrays = random_point(d, 6)
+        f = d.function()
+        g = d.gradient_function("X")(**arrays)
+        for fd, an in central_difference_check(
+            lambda x: f(**{**arrays, "X": x}), arrays["X"], g, n_dirs=2, seed=8
+        ):
+            assert abs(fd - an) <= 1e-6 * max(1.0, abs(an)), (block, fd, an)
+
+    run_over_shapes(check, template)
