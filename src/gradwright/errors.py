@@ -11,7 +11,7 @@ __all__ = ["FormulaError", "NotSupportedError", "ShapeError"]
 class FormulaError(ValueError):
     """A problem with what the user wrote: where it is (line, column) and why it is wrong.
 
-    >>> err = FormulaError("unknown name 'Q'", line=2, column=7, source_line="f = 2 * Q", width=1)
+    >>> err = FormulaError("unknown name 'Q'", line=2, column=9, source_line="f = 2 * Q", width=1)
     >>> print(err)
     line 2: unknown name 'Q'
         f = 2 * Q
@@ -46,7 +46,11 @@ class FormulaError(ValueError):
         else:
             col = self.column
         width = min(self.width, max(1, len(shown) - col + 1))
-        return f"{head}\n    {shown}\n    {' ' * (col - 1)}{'^' * width}"
+        # a tab before the caret is repeated as a tab, so the caret lines up however wide the
+        # terminal shows tabs
+        pad = "".join("\t" if ch == "\t" else " " for ch in shown[: col - 1])
+        pad += " " * max(0, col - 1 - len(shown))
+        return f"{head}\n    {shown}\n    {pad}{'^' * width}"
 
     def __str__(self) -> str:
         return self.rendered()

@@ -58,7 +58,7 @@ def test_bad_block(block, wrt, expected, line, column):
         return
     head, shown, caret = text.split("\n")[:3]
     assert head == f"line {line}: {err.reason}"
-    assert re.fullmatch(r" {4,}\^+", caret), text
+    assert re.fullmatch(r" {4}[ \t]*\^+", caret), text
     if len(err.source_line) <= 160:  # long lines are quoted around the caret only
         assert shown == "    " + err.source_line
         assert caret.index("^") == 4 + column - 1
@@ -244,3 +244,12 @@ def test_odd_text_is_derived_or_refused(block):
         d.latex()
         d.source()
     assert time.perf_counter() - start < 2.0
+
+
+def test_caret_lines_up_after_tabs():
+    with pytest.raises(FormulaError) as info:
+        derive("A: (n, n)\nf =\ttrace(A)\t+\tQ", wrt="A")
+    err = info.value
+    _, shown, caret = str(err).split("\n")
+    assert err.column == 16
+    assert caret.expandtabs(8).index("^") == shown.expandtabs(8).index("Q")
