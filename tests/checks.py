@@ -29,6 +29,7 @@ __all__ = [
     "jax_grad",
     "jax_hessian",
     "jax_jacobian",
+    "jax_hvp",
     "jax_jvp",
     "jax_reference",
     "UnreadableBlock",
@@ -284,6 +285,18 @@ def jax_vjp(ref, arrays: dict, var: str, cotangent) -> np.ndarray:
     vs, consts = _split(arrays, (var,))
     g = jnp.asarray(cotangent, dtype=jnp.float64)
     return np.asarray(_vjp_fn(ref, var)(vs[var], g, consts))
+
+
+def jax_hvp(ref, arrays: dict, var: str, direction) -> np.ndarray:
+    """The Hessian of a scalar `ref` w.r.t. `var` applied to `direction` (forward over reverse)."""
+    vs, consts = _split(arrays, (var,))
+    v = jnp.asarray(direction, dtype=jnp.float64)
+
+    def hvp(x, v, consts):
+        grad = jax.grad(lambda y: ref(**consts, **{var: y}))
+        return jax.jvp(grad, (x,), (v,))[1]
+
+    return np.asarray(jax.jit(hvp)(vs[var], v, consts))
 
 
 def jax_hessian(ref, arrays: dict, var: str) -> np.ndarray:

@@ -91,6 +91,8 @@ class _Gen:
             return self.draw(st.sampled_from(["2", "0.5", "1.5", "3"]))
         if len(shape) == 2 and shape[0] == shape[1] and choice == 6:
             return f"eye({shape[0]})"
+        if len(shape) == 2 and shape[0] == shape[1] and choice == 4:
+            return self.symbol(shape, self.draw(st.sampled_from(["symmetric", "diagonal"])))
         if choice == 5 and len(shape) > 0:
             return f"ones({', '.join(str(d) for d in shape)})"
         return self.symbol(shape)
