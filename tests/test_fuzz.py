@@ -2,8 +2,8 @@
 
 Random well-shaped blocks from the grammar, and near-valid mutations of them: the engine either
 derives a derivative that matches the reference library at a random point (JAX, reading the
-block independently, as NumPy would compute it; relative error <= 1e-7, points where the
-reference is not finite are skipped), or raises gradwright.FormulaError. Never a wrong number,
+block independently, as NumPy would compute it; relative error <= 1e-7 above an absolute
+rounding floor of 1e-10; points where the reference is not finite are skipped), or raises gradwright.FormulaError. Never a wrong number,
 never another exception.
 
 The default run fits CI. The 10x run is marked slow and needs GRADWRIGHT_SLOW=1:
@@ -25,6 +25,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 from hypothesis import HealthCheck, event, given, settings
+from hypothesis.errors import InvalidArgument
 
 from checks import (
     UnreadableBlock,
@@ -45,6 +46,20 @@ from gradwright.evaluate import evaluate
 from strategies import FUZZ_SIZES, blocks, mutants
 
 RTOL = 1e-7  # the property's bound on the relative error against the reference library
+# and an absolute floor: a derivative that is zero up to rounding (sum(softmax(x)) is 1) or
+# that is a difference of nearly equal numbers (1 - tanh(s)^2 at s = 15) is compared to
+# rounding noise, not relatively (common practice)
+ATOL = 1e-10
+
+
+def _bad(got, want) -> float:
+    """How far beyond the tolerance `got` is (<= 1 passes): ||got-want|| / (RTOL||want|| + ATOL)."""
+    got = np.asarray(got, dtype=float)
+    want = np.asarray(want, dtype=float)
+    assert got.shape == want.shape, (got.shape, want.shape)
+    return float(np.linalg.norm(got - want) / (RTOL * np.linalg.norm(want) + ATOL))
+
+
 CI_EXAMPLES = 150
 SLOW_FACTOR = 10
 COUNTS_FILE = Path(__file__).resolve().parents[1] / "test-artifacts" / "fuzz-counts.json"
@@ -56,6 +71,14 @@ slow = [
         reason="the 10x fuzzing run: GRADWRIGHT_SLOW=1 python -m pytest -m slow tests/test_fuzz.py",
     ),
 ]
+
+
+def _event(name: str) -> None:
+    """hypothesis.event inside a run (for --hypothesis-show-statistics), nothing outside."""
+    try:
+        event(name)
+    except InvalidArgument:
+        pass
 
 
 def known_bug(err: BaseException) -> str:
@@ -93,7 +116,7 @@ def check_block(b, counts: Counter) -> None:
         if not bug:
             raise
         counts[bug] += 1
-        event(bug)
+        _event(bug)
 
 
 def _check_block(b, counts: Counter) -> None:
@@ -109,7 +132,7 @@ def _check_block(b, counts: Counter) -> None:
     except FormulaError as err:
         assert str(err).strip(), "a FormulaError with an empty message"
         counts["refused (FormulaError)"] += 1
-        event("refused")
+        _event("refused")
         return
     # the engine accepted the block: NumPy must be able to read and compute it too
     try:
@@ -126,11 +149,11 @@ def _check_block(b, counts: Counter) -> None:
         got_value = value_fn(**arrays)
     if not _finite(want_value):
         counts["skipped (reference not finite)"] += 1
-        event("skipped: non-finite reference")
+        _event("skipped: non-finite reference")
         return
     where = f"\n{b.text}\nwrt {b.wrt} ({b.mutation or 'valid'})"
     assert np.shape(got_value) == np.shape(want_value), f"value shape{where}"
-    assert rel_err(got_value, want_value) <= RTOL, f"value differs{where}"
+    assert _bad(got_value, want_value) <= 1, f"value differs{where}"
     rng = np.random.default_rng(1)
     if d.is_scalar:
         wants = jax_grad(ref, arrays, d.variables)  # reference library: JAX
@@ -143,7 +166,7 @@ def _check_block(b, counts: Counter) -> None:
                 warnings.simplefilter("ignore", RuntimeWarning)
                 got = fn(**arrays)
             err = rel_err(got, want)
-            assert err <= RTOL, f"gradient wrt {v}: relative error {err:.2e}{where}"
+            assert _bad(got, want) <= 1, f"gradient wrt {v}: relative error {err:.2e}{where}"
         if zlib.crc32(b.text.encode()) % 3 == 0:  # Hessian-vector products on a third
             _check_hvp(d, ref, arrays, rng, where, counts)
     else:
@@ -158,10 +181,10 @@ def _check_block(b, counts: Counter) -> None:
             with warnings.catch_warnings():
                 warnings.simplefilter("ignore", RuntimeWarning)
                 got, got_t = jvp(dx, **arrays), vjp(cot, **arrays)
-            assert rel_err(got, want) <= RTOL, f"JVP wrt {v}{where}"
-            assert rel_err(got_t, want_t) <= RTOL, f"VJP wrt {v}{where}"
+            assert _bad(got, want) <= 1, f"JVP wrt {v}{where}"
+            assert _bad(got_t, want_t) <= 1, f"VJP wrt {v}{where}"
     counts["derived and matched"] += 1
-    event("derived and matched")
+    _event("derived and matched")
 
 
 STEP_RTOL = 1e-5  # d(...) in early steps is a finite difference in the reference evaluator
@@ -235,7 +258,7 @@ def _check_hvp(d, ref, arrays, rng, where, counts) -> None:
         warnings.simplefilter("ignore", RuntimeWarning)
         got = hvp(dx, **arrays)
     err = rel_err(got, want)
-    assert err <= RTOL, f"Hessian-vector product wrt {v}: relative error {err:.2e}{where}"
+    assert _bad(got, want) <= 1, f"Hessian-vector product wrt {v}: relative error {err:.2e}{where}"
     counts["Hessian-vector products matched"] += 1
 
 
