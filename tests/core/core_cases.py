@@ -200,6 +200,15 @@ G += [
     _c("diagonal-logdet", "D: (n, n) diagonal\nA: (n, n)\nf = logdet(D) + sum(D * A)", "D", lambda D, A, **_: slogdet(D) + jnp.sum(D * A)),
 ]  # fmt: skip
 
+# --- vector transposes, negation, symbol over array, trivial matrix powers ----------------------
+G += [
+    _c("vector-transpose", "x: (n,)\nA: (n, n)\nf = x.T @ A @ x + sum((x.T @ A) ** 2)", "x A", lambda x, A, **_: x @ A @ x + jnp.sum((x @ A) ** 2)),
+    _c("negation", "X: (n, k)\nY: (n, k)\nf = sum(-X * Y) - sum(-(X ** 2))", "X", lambda X, Y, **_: jnp.sum(-X * Y) + jnp.sum(X**2)),
+    _c("symbol-over-array", "X: (n, k) positive\nc: ()\nf = sum(c / X)", "c X", lambda X, c, **_: jnp.sum(c / X)),
+    _c("mpow-0-1", "X: (n, n)\nA: (n, n)\nf = trace(mpow(X, 1) @ A) + trace(mpow(X, 0) @ X)", "X", lambda X, A, **_: jnp.trace(X @ A) + jnp.trace(X)),
+    _c("nested-definitions", "X: (n, k)\nW: (k, p)\nb: (p,)\nH = tanh(X @ W)\nZ = H @ b\nf = logsumexp(Z) + norm(H)", "W b", lambda X, W, b, **_: lse(jnp.tanh(X @ W) @ b) + fnorm(jnp.tanh(X @ W))),
+]  # fmt: skip
+
 GRADIENT_CASES = G
 
 # --- vector- and matrix-valued targets -------------------------------------------------------------
@@ -225,6 +234,8 @@ J: list[Case] = [
     _c("map-outer", "x: (n,)\ny: (k,)\nF = outer(x, y)", "x y", lambda x, y, **_: jnp.outer(x, y)),
     _c("map-scalar-times-matrix", "c: ()\nX: (m, n)\nF = c * X + c ** 2 * eye(m) @ X", "c X", lambda c, X, **_: c * X + c**2 * X),
     _c("map-power", "X: (m, n) positive\nc: ()\nF = X ** 3 + X ** c", "X c", lambda X, c, **_: X**3 + X**c),
+    _c("map-solve-vector", "A: (n, n) invertible\nb: (n,)\nF = solve(A, b)", "A b", lambda A, b, **_: jnp.linalg.solve(A, b)),
+    _c("map-definitions", "X: (n, k)\nW: (k, p)\nH = sigmoid(X @ W)\nF = H.T @ H", "W", lambda X, W, **_: sig(X @ W).T @ sig(X @ W)),
     _c("map-det-times", "X: (n, n) invertible\nF = det(X) * inv(X)", "X", lambda X, **_: jnp.linalg.det(X) * jnp.linalg.inv(X)),
 ]  # fmt: skip
 
