@@ -13,7 +13,7 @@ import functools
 
 import numpy as np
 import pytest
-from core_cases import GRADIENT_CASES, JACOBIAN_CASES, params
+from core_cases import GRADIENT_CASES, JACOBIAN_CASES, Case, params
 
 from checks import random_direction, random_point, rel_err, sizes_for, vec
 from gradwright import FormulaError, derive
@@ -22,7 +22,20 @@ from gradwright.evaluate import evaluate
 from gradwright.language import parse_block
 from gradwright.printing import text
 
-ALL_CASES = GRADIENT_CASES + JACOBIAN_CASES
+
+def _more_cases():
+    """The blocks of the cookbook and stationary-point suites, as cases without a reference."""
+    from test_cookbook import COOKBOOK
+    from test_stationary import CASES
+
+    out = [
+        Case(f"cookbook-{i}", block, (var,), None) for i, (_, block, var, _) in enumerate(COOKBOOK)
+    ]
+    out += [Case(f"stationary-{name}", block, (var,), None) for name, block, var, _ in CASES]
+    return out
+
+
+ALL_CASES = GRADIENT_CASES + JACOBIAN_CASES + _more_cases()
 STEP_RTOL = 1e-6  # the evaluator's d(...) is a 4th-order central difference with h = 1e-3
 SEEDS = (0, 1)
 
