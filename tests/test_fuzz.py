@@ -43,6 +43,8 @@ from checks import (
 from gradwright import FormulaError, derive
 from gradwright import expr as E
 from gradwright.evaluate import evaluate
+from gradwright.language import parse_block
+from gradwright.printing import text
 from strategies import FUZZ_SIZES, blocks, mutants
 
 RTOL = 1e-7  # the property's bound on the relative error against the reference library
@@ -242,6 +244,22 @@ def check_steps(b, counts: Counter) -> None:
     counts["steps all equal"] += 1
 
 
+def check_round_trip(b, counts: Counter) -> None:
+    """parse(text(e)) == e for the target of a random block (every definition kept above)."""
+    counts["examples"] += 1
+    try:
+        block = parse_block(b.text)
+    except FormulaError:
+        counts["refused (FormulaError)"] += 1
+        return
+    lines = b.text.split("\n")
+    head = "\n".join(lines[:-1]) + "\n"
+    printed = text(block.expr)
+    again = parse_block(head + "f = " + printed).expr
+    assert again == block.expr, f"{b.text}\nprinted: {printed}\nread back: {text(again)}"
+    counts["round trip equal"] += 1
+
+
 def _check_hvp(d, ref, arrays, rng, where, counts) -> None:
     v = d.variables[0]
     try:
@@ -306,6 +324,11 @@ def test_fuzz_near_valid_mutations():
 def test_fuzz_displayed_steps_of_valid_blocks():
     counts = _run(blocks(), CI_EXAMPLES, "steps of valid blocks (CI)", True, check_steps)
     assert counts["steps all equal"] >= 0.8 * counts["examples"], counts
+
+
+def test_fuzz_text_printer_round_trip():
+    counts = _run(blocks(), CI_EXAMPLES, "text round trip (CI)", True, check_round_trip)
+    assert counts["round trip equal"] >= 0.9 * counts["examples"], counts
 
 
 @pytest.mark.parametrize("which", ["valid", "mutations", "steps"])
