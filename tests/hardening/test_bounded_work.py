@@ -63,17 +63,17 @@ CHILD = textwrap.dedent(
 )
 
 
-def run_case(build: str, wrt="x", stages=()) -> dict:
+def run_case(build: str, wrt="x", stages=(), timeout=TIMEOUT_SECONDS) -> dict:
     case = {"build": textwrap.dedent(build), "wrt": wrt, "stages": list(stages)}
     try:
         proc = subprocess.run(
             [sys.executable, "-c", CHILD, json.dumps(case)],
             capture_output=True,
             text=True,
-            timeout=TIMEOUT_SECONDS,
+            timeout=timeout,
         )
     except subprocess.TimeoutExpired:
-        pytest.fail(f"the case did not finish within {TIMEOUT_SECONDS} s (a hang)")
+        pytest.fail(f"the case did not finish within {timeout} s (a hang)")
     assert proc.returncode == 0, f"the child crashed ({proc.returncode}): {proc.stderr[-2000:]}"
     result = json.loads(proc.stdout.strip().splitlines()[-1])
     assert result["outcome"] in ("ok", "FormulaError"), result
@@ -343,3 +343,56 @@ def test_a_derivation_is_freed_when_dropped():
     del d
     gc.collect()
     assert ref() is None
+
+
+# --- work that grows faster than the input --------------------------------------------------
+
+
+def test_nested_matrix_powers():
+    r = run_case('block = "A: (n, n)\\nf = trace(mpow(mpow(mpow(A, 64), 64), 64))"', wrt="A")
+    expect_error(r, "degree 4,096 through nested mpow")
+    r = run_case('block = "A: (n, n)\\nB = mpow(A, 64)\\nC = mpow(B, 64)\\nf = trace(C)"', wrt="A")
+    expect_error(r, "degree 4,096")
+
+
+def test_matrix_power_of_degree_64_is_derived():
+    r = run_case(
+        """
+        block = "A: (n, n)\\nB = mpow(A, 8)\\nf = trace(mpow(B, 8))"
+        arrays = {"A": [[0.5, 0.1], [0.0, 0.9]]}
+        """,
+        wrt="A",
+        stages=["gradient", "latex", "source", "numeric"],
+    )
+    import numpy as np
+
+    a = np.array([[0.5, 0.1], [0.0, 0.9]])
+    want = 64 * np.linalg.matrix_power(a, 63).T  # d trace(A^k) = k (A^(k-1))^T
+    np.testing.assert_allclose(r["grad"], want, rtol=1e-10)
+
+
+CODEGEN_SLOW = pytest.mark.xfail(
+    strict=True,
+    reason="generating code for long matrix chains grows like the fourth power of the chain "
+    "length (NEEDS_FROM_CORE.md: 'long chains in the code generator')",
+)
+
+
+@CODEGEN_SLOW
+def test_long_chain_of_one_matrix():
+    run_case(
+        'block = "A: (n, n)\\nf = trace(" + " @ ".join(["A"] * 100) + ")"',
+        wrt="A",
+        stages=["source"],
+        timeout=6,
+    )
+
+
+@CODEGEN_SLOW
+def test_deeply_nested_solves():
+    run_case(
+        'block = "A: (n, n)\\nB: (n, n)\\nf = trace(" + "solve(A, " * 60 + "B" + ")" * 60 + ")"',
+        wrt="A",
+        stages=["source"],
+        timeout=6,
+    )

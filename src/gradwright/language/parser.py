@@ -30,6 +30,8 @@ LIMITS = {
     # exact constants are rationals; 4096 bits is about 1,233 decimal digits, room for any
     # float literal (1.8e308 needs 1,024 bits) while `9**9**9` is refused before it is computed
     "constant_bits": 4_096,
+    # mpow(A, k), also through nested powers: the differential has k terms
+    "matrix_power": 64,
 }
 
 FUNCTIONS = {
@@ -210,6 +212,7 @@ class _Reader:
         self.nodes = 0
         self.source_lines: list[str] = []
         self.base = 1
+        self.power_cache: dict = {}
 
     # --- errors ------------------------------------------------------------------------------
 
@@ -1125,11 +1128,23 @@ class _Reader:
                 or k.value < 0
             ):
                 self.fail_node("mpow(A, k) needs k to be a non-negative integer literal", k)
-            if k.value > 64:
+            if k.value > LIMITS["matrix_power"]:
                 self.fail_node(
-                    "mpow(A, k): k larger than 64 is not supported yet", k, NotSupportedError
+                    f"mpow(A, k): k larger than {LIMITS['matrix_power']} is not supported yet",
+                    k,
+                    NotSupportedError,
                 )
             E.MatPow(base, k.value)  # shape check
+            inner = _power_degree(base, self.power_cache)
+            if inner * k.value > LIMITS["matrix_power"]:
+                # the differential of mpow(B, k) has k terms, each holding dB: nested powers
+                # multiply, and mpow(mpow(A, 64), 64) would be 4,096 terms of A-chains
+                self.fail_node(
+                    f"not supported yet: this is a matrix power of degree {inner * k.value:,} "
+                    f"through nested mpow (at most {LIMITS['matrix_power']})",
+                    node,
+                    NotSupportedError,
+                )
             if k.value == 0:
                 return E.Identity(base.shape[0])
             if k.value == 1:
@@ -1250,6 +1265,19 @@ def _char_col(line: str, byte_offset: int) -> int:
     """ast gives UTF-8 byte offsets; carets need character columns."""
     raw = line.encode("utf-8")
     return len(raw[:byte_offset].decode("utf-8", errors="replace"))
+
+
+def _power_degree(e: E.Expr, cache: dict) -> int:
+    """The largest product of mpow exponents along a path of `e` (through definitions)."""
+    got = cache.get(id(e))
+    if got is not None:
+        return got[1]
+    kids = e.children
+    d = max((_power_degree(c, cache) for c in kids), default=1) if kids else 1
+    if type(e) is E.MatPow:
+        d *= e.args[1] if isinstance(e.args[1], int) else 1
+    cache[id(e)] = (e, d)
+    return d
 
 
 def _depth(e: E.Expr, cache: dict) -> int:
