@@ -232,18 +232,15 @@ class _Reader:
         lineno = self.base + node.lineno - 1
         src = self.source_lines[lineno - 1]
         col = _char_col(src, node.col_offset)
-        if width is not None:
-            pass
-        elif getattr(node, "end_lineno", None) == node.lineno and node.end_col_offset is not None:
+        if (
+            width is None
+            and getattr(node, "end_lineno", None) == node.lineno
+            and node.end_col_offset is not None
+        ):
             width = _char_col(src, node.end_col_offset) - col
-        else:
+        elif width is None:
             width = len(src) - col
         self.fail(reason, lineno, col, max(1, width), cls)
-
-    def fail_at(self, reason, node, start: int, width: int, cls=FormulaError):
-        """A caret at character `start` (0-based) of the line where `node` starts."""
-        lineno = self.base + node.lineno - 1
-        self.fail(reason, lineno, start, max(1, width), cls)
 
     # --- the block ---------------------------------------------------------------------------
 
