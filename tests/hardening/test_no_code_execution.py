@@ -318,3 +318,24 @@ def test_user_names_do_not_collide_with_generated_names(name):
 def test_names_the_generated_module_imports_are_refused(name):
     with pytest.raises(FormulaError, match="reserved"):
         derive(f"{name}: (n, n)\nf = trace({name})", wrt=name)
+
+
+LEGAL_BUT_ALARMING = ["os", "sys", "self", "cls", "system", "subprocess", "shutil", "pathlib",
+                      "importlib", "exec_", "eval_", "lambda_", "None_", "builtins_", "kwargs",
+                      "args", "dims", "specs", "owner", "label"]  # fmt: skip
+
+
+@pytest.mark.parametrize("name", LEGAL_BUT_ALARMING)
+def test_alarming_but_legal_names_only_compute(name, quiet_cwd):
+    import numpy as np
+
+    block = f"{name}: (n, n) spd\nx: (n,)\nf = x @ solve({name}, x) + logdet({name})"
+    d = derive(block, wrt=[name, "x"])
+    test_generated_source_uses_only_known_identifiers(block, [name, "x"])
+    s = np.array([[2.0, 0.5], [0.5, 1.0]])
+    x = np.array([1.0, -1.0])
+    g_s, g_x = d.gradient_function()(**{name: s, "x": x})
+    inv = np.linalg.inv(s)
+    np.testing.assert_allclose(g_x, 2 * inv @ x)
+    full = -inv @ np.outer(x, x) @ inv + inv
+    np.testing.assert_allclose(g_s, (full + full.T) / 2)
