@@ -109,6 +109,14 @@ print("largest difference, optimizer vs closed form:", np.max(np.abs(S_fit - S_c
 print("closed form vs Z.T @ Z / days:", np.max(np.abs(S_closed - Z.T @ Z / days)))
 print("gradient at the closed form:", np.max(np.abs(grad_nll(Z=Z, S=S_closed, days=days))))""",
     ),
+    (
+        "md",
+        """### The identities behind it
+
+The catalogue, searched for the log-determinant; the toggle lists the identities that apply to
+the last target.""",
+    ),
+    ("code", "%identities logdet"),
 ]
 
 DEMAND = [

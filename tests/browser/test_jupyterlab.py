@@ -39,7 +39,7 @@ CHROMIUM_FLAGS = [
     "--disable-sync",
 ]
 SERVER_START_TIMEOUT = 120  # seconds; a cold JupyterLab start on 2 cores takes ~10 s
-CELL_TIMEOUT_MS = 180_000
+CELL_TIMEOUT_MS = 120_000
 
 
 def _ensure_chromium() -> None:
@@ -158,7 +158,12 @@ def test_demo_notebook_in_jupyterlab(tmp_path):
             )
             try:
                 page = browser.new_page(viewport={"width": 1280, "height": 2400})
-                _run_notebook_and_click(page, port, token, notebook.name)
+                try:
+                    _run_notebook_and_click(page, port, token, notebook.name)
+                except Exception:
+                    # What the page looked like when it went wrong, for the test output.
+                    page.screenshot(path=str(ARTIFACTS / "jupyterlab-failure.png"))
+                    raise
             finally:
                 browser.close()
     finally:
@@ -174,7 +179,7 @@ def _run_notebook_and_click(page, port: int, token: str, name: str) -> None:
     _wait_kernel_idle(page)
 
     page.evaluate("() => window.jupyterapp.shell.collapseLeft()")
-    page.evaluate("() => window.jupyterapp.commands.execute('notebook:run-all-cells')")
+    _start_run_all(page)
     # Typeset math (MathJax 3 renders into <mjx-container>) and the check panel's widgets.
     page.wait_for_selector("mjx-container", state="attached")
     status = page.locator(".gradwright-check-status").first
@@ -222,12 +227,36 @@ def _run_notebook_and_click(page, port: int, token: str, name: str) -> None:
         shutil.copy(shot, ROOT / "docs" / "screenshot.png")
 
 
+def _accept_dialogs(page) -> None:
+    """Accept a dialog JupyterLab may raise on opening (e.g. "Select Kernel", preselected)."""
+    accept = page.locator(".jp-Dialog button.jp-mod-accept")
+    if accept.count():
+        accept.first.click()
+
+
+def _start_run_all(page) -> None:
+    # Not awaited: the command's promise only settles once every cell has run.
+    page.evaluate("() => { window.jupyterapp.commands.execute('notebook:run-all-cells'); }")
+    deadline = time.monotonic() + CELL_TIMEOUT_MS / 1000
+    while time.monotonic() < deadline:
+        _accept_dialogs(page)
+        started = page.evaluate(
+            """() => Array.from(document.querySelectorAll('.jp-InputArea-prompt'))
+                      .some(p => /\\[(\\*|\\d+)\\]/.test(p.textContent))"""
+        )
+        if started:
+            return
+        page.wait_for_timeout(500)
+    raise AssertionError("JupyterLab did not start running the cells")
+
+
 def _wait_kernel_idle(page) -> None:
+    # Ask the notebook's session itself: a status bar reading "No Kernel | Idle" is not ready.
     page.wait_for_function(
         """() => {
-            const el = document.querySelector('.jp-Notebook-ExecutionIndicator');
-            if (el && el.getAttribute('data-status') === 'idle') return true;
-            const bar = document.querySelector('#jp-main-statusbar');
-            return !el && bar && /Idle/.test(bar.innerText);
+            const widget = window.jupyterapp.shell.currentWidget;
+            const session = widget && widget.sessionContext && widget.sessionContext.session;
+            const kernel = session && session.kernel;
+            return !!kernel && kernel.status === 'idle' && kernel.connectionStatus === 'connected';
         }"""
     )

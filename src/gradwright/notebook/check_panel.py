@@ -263,10 +263,14 @@ class CheckPanel:
         box.add_class("gradwright-check-panel")
         return box
 
-    def _ipython_display_(self):
-        from IPython.display import display
-
-        display(self.widget)
+    def _repr_mimebundle_(self, **kwargs):
+        bundle = dict(self.widget._repr_mimebundle_(**kwargs) or {})
+        # A terminal shows this line instead of the widget's repr.
+        bundle["text/plain"] = (
+            f"[finite-difference check of {self.derivation.target}: "
+            "widgets show in Jupyter; call .run() here]"
+        )
+        return bundle
 
     # -- wiring -------------------------------------------------------------------------
     def _method_changed(self, change):

@@ -127,10 +127,11 @@ class IdentityPanel:
         self.widget.add_class("gradwright-identity-panel")
         self.refresh()
 
-    def _ipython_display_(self):
-        from IPython.display import display
-
-        display(self.widget)
+    def _repr_mimebundle_(self, **kwargs):
+        bundle = dict(self.widget._repr_mimebundle_(**kwargs) or {})
+        found = ", ".join(i.id for i in self.shown[:8]) or "nothing"
+        bundle["text/plain"] = f"[identity catalogue: {found}]"
+        return bundle
 
     def _changed(self, _change):
         self.refresh()
