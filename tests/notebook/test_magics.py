@@ -203,3 +203,13 @@ def test_identities_magic_opens_the_panel(shell):
     with capture_output() as cap:
         shell.run_line_magic("identities", "logdet")
     assert any(WIDGET in o.data for o in cap.outputs)
+
+
+def test_variables_may_be_separated_by_commas(shell):
+    run_derive(shell, "U, V --name commas --no-check", DEMAND)
+    assert shell.user_ns["commas_derivation"].variables == ("U", "V")
+
+
+def test_unknown_variable_is_a_usage_error(shell):
+    with pytest.raises(UsageError, match="Q"):
+        shell.run_cell_magic("derive", "Q", COVARIANCE)

@@ -93,13 +93,19 @@ class GradwrightMagics(Magics):
                 "the cell is empty: write declarations like `X: (n, n)` and a last line "
                 "`f = ...` below %%derive"
             )
-        derivation = self._derive(cell, list(args.variables))
+        variables = [v for token in args.variables for v in token.split(",") if v]
+        derivation = self._derive(cell, variables)
         name = args.name or derivation.target
         _check_name(name)
 
+        from gradwright import FormulaError
+
         from .functions import Injected, injections
 
-        plan = injections(derivation, name)
+        try:
+            plan = injections(derivation, name)
+        except FormulaError as err:  # e.g. a product the code generator does not support yet
+            raise UsageError(str(err)) from None
         panel = None
         if not args.no_check:
             from .check_panel import CheckPanel
