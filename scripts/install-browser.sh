@@ -21,5 +21,5 @@ if ! "$PYTHON" -m jupyter kernelspec list 2>/dev/null | grep -qE '^\s+python3\s'
 fi
 
 if [ -x /usr/bin/chromium ]; then
-    /usr/bin/chromium --version || true
+    /usr/bin/chromium --version 2>/dev/null || true
 fi
