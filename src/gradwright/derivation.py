@@ -18,6 +18,8 @@ from .sampling import default_sizes, needs_positive, sample_inputs
 from .simplify import simplify
 
 MAX_STEPS = 40
+#: Hessian-vector products are generated only for gradients up to this size (written out)
+MAX_HESSIAN_GRADIENT = 2_000
 
 
 def _memoized(method):
@@ -449,6 +451,8 @@ class Derivation:
                 )
             )
             if self.is_scalar:
+                if E.expanded_size(self._gradient(v), MAX_HESSIAN_GRADIENT) > MAX_HESSIAN_GRADIENT:
+                    continue  # second derivatives of so large a gradient: not generated
                 try:
                     hv = C.lower(self._hvp_expr(v), cost)
                 except NotSupportedError:

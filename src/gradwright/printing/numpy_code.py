@@ -194,11 +194,17 @@ FUNC_CODE = {
 # ---------------------------------------------------------------------------------------------
 
 
+#: longest product chain ordered by dynamic programming (cubic in the length)
+MAX_DP_CHAIN = 16
+
+
 class CostModel:
     """Flop estimates from guessed dim sizes (user hints first)."""
 
     def __init__(self, sizes: dict):
         self.sizes = sizes
+        self._orders: dict = {}
+        self._flops: dict = {}
 
     def dim(self, d) -> float:
         if d is None:
@@ -212,9 +218,23 @@ class CostModel:
         return self.dim(shape[0]) * self.dim(shape[1])
 
     def chain_order(self, factors):
-        """Optimal parenthesization (dynamic programming); returns (cost, tree)."""
-        n = len(factors)
-        dims = [self.dim(factors[0].shape[0])] + [self.dim(f.shape[1]) for f in factors]
+        """Optimal parenthesization (dynamic programming, memoized on the dims); returns
+        (cost, tree). Chains longer than MAX_DP_CHAIN are multiplied left to right."""
+        dims = (self.dim(factors[0].shape[0]),) + tuple(self.dim(f.shape[1]) for f in factors)
+        hit = self._orders.get(dims)
+        if hit is None:
+            hit = self._chain_order(dims)
+            self._orders[dims] = hit
+        return hit
+
+    def _chain_order(self, dims):
+        n = len(dims) - 1
+        if n > MAX_DP_CHAIN:
+            cost, tree = 0.0, 0
+            for j in range(1, n):
+                cost += dims[0] * dims[j] * dims[j + 1]
+                tree = (tree, j)
+            return cost, tree
         cost = [[0.0] * n for _ in range(n)]
         split = [[0] * n for _ in range(n)]
         for length in range(2, n + 1):
@@ -237,7 +257,12 @@ class CostModel:
 
     def flops(self, e: E.Expr, free=frozenset(), memo=None) -> float:
         if memo is None:
-            memo = {}
+            key = (e, free)
+            hit = self._flops.get(key)
+            if hit is None:
+                hit = self.flops(e, free, {})
+                self._flops[key] = hit
+            return hit
         if e in free:
             return 0.0
         if e in memo:
@@ -534,7 +559,7 @@ class NumpyPrinter(TextPrinter):
         if type(a) is E.MatMul and self.gen.temps.get(a) is None:
             fs = a.args
             best = None
-            for k in range(1, len(fs)):
+            for k in range(1, len(fs)) if len(fs) <= MAX_DP_CHAIN else (len(fs) // 2,):
                 left, right = fs[:k], fs[k:]
                 c = (self.gen.cost.chain_order(left)[0] if len(left) > 1 else 0) + (
                     self.gen.cost.chain_order(right)[0] if len(right) > 1 else 0
