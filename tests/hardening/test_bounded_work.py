@@ -396,3 +396,35 @@ def test_deeply_nested_solves():
         stages=["source"],
         timeout=6,
     )
+
+
+# --- a caller that is already deep in the stack (a notebook kernel, a test runner) ----------
+
+
+def _at_depth(frames: int, fn):
+    return fn() if frames == 0 else _at_depth(frames - 1, fn)
+
+
+@pytest.mark.parametrize("frames", [0, 300, 700])
+@pytest.mark.parametrize(
+    "block",
+    [
+        "x: (n,)\nf = sum(" + "exp(" * 118 + "x" + ")" * 118 + ")",
+        "\n".join(["x: (n,)", "R0 = x"] + [f"R{i + 1} = R{i} + x" for i in range(118)])
+        + "\nf = sum("
+        + "exp(" * 100
+        + "R118"
+        + ")" * 100
+        + ")",
+        "x: ()\nf = " + " + ".join(["x"] * 2500),
+    ],
+    ids=["nested-118", "chain-and-nesting", "sum-2500"],
+)
+def test_deep_input_under_a_deep_caller(block, frames):
+    """The reader never lets a RecursionError out, however deep the caller's stack is."""
+    import gradwright
+
+    try:
+        _at_depth(frames, lambda: gradwright.derive(block, wrt="x"))
+    except gradwright.FormulaError as err:
+        assert "nest" in err.reason or "too long" in err.reason

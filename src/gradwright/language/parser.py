@@ -778,7 +778,15 @@ class _Reader:
                     node,
                 )
         self.depth_cache: dict = {}
-        return self.tr(node, 0)
+        try:
+            return self.tr(node, 0)
+        except RecursionError:
+            # a safety net: the nesting limit keeps the reader well inside Python's default
+            # recursion limit, but the caller's own stack (a deep notebook kernel) counts too
+            pass
+        self.fail_node(
+            "the expression is nested too deeply to read here; split it into definitions", node
+        )
 
     def tr(self, node, depth):
         if depth > LIMITS["nesting_depth"]:
@@ -1264,24 +1272,39 @@ def _char_col(line: str, byte_offset: int) -> int:
     return len(raw[:byte_offset].decode("utf-8", errors="replace"))
 
 
-def _power_degree(e: E.Expr, cache: dict) -> int:
-    """The largest product of mpow exponents along a path of `e` (through definitions)."""
+def _dag_fold(e: E.Expr, cache: dict, combine) -> int:
+    """`combine(node, child values)` over the DAG below `e`, children first, without recursion.
+
+    The cache maps id(node) -> (node, value); holding the node keeps its id from being reused.
+    """
     got = cache.get(id(e))
     if got is not None:
         return got[1]
-    kids = e.children
-    d = max((_power_degree(c, cache) for c in kids), default=1) if kids else 1
-    if type(e) is E.MatPow:
-        d *= e.args[1] if isinstance(e.args[1], int) else 1
-    cache[id(e)] = (e, d)
-    return d
+    stack = [(e, False)]
+    while stack:
+        node, expanded = stack.pop()
+        if id(node) in cache:
+            continue
+        kids = node.children
+        if expanded or not kids:
+            cache[id(node)] = (node, combine(node, [cache[id(c)][1] for c in kids]))
+            continue
+        stack.append((node, True))
+        stack.extend((c, False) for c in kids if id(c) not in cache)
+    return cache[id(e)][1]
+
+
+def _power_degree(e: E.Expr, cache: dict) -> int:
+    """The largest product of mpow exponents along a path of `e` (through definitions)."""
+
+    def combine(node, values):
+        d = max(values, default=1)
+        if type(node) is E.MatPow and isinstance(node.args[1], int):
+            d *= node.args[1]
+        return d
+
+    return _dag_fold(e, cache, combine)
 
 
 def _depth(e: E.Expr, cache: dict) -> int:
-    got = cache.get(id(e))
-    if got is not None:
-        return got[1]
-    kids = e.children
-    d = 1 + max((_depth(c, cache) for c in kids), default=0) if kids else 1
-    cache[id(e)] = (e, d)
-    return d
+    return _dag_fold(e, cache, lambda node, values: 1 + max(values, default=0))
