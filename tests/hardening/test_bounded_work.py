@@ -371,14 +371,6 @@ def test_matrix_power_of_degree_64_is_derived():
     np.testing.assert_allclose(r["grad"], want, rtol=1e-10)
 
 
-CODEGEN_SLOW = pytest.mark.xfail(
-    strict=True,
-    reason="generating code for long matrix chains grows like the fourth power of the chain "
-    "length (NEEDS_FROM_CORE.md: 'long chains in the code generator')",
-)
-
-
-@CODEGEN_SLOW
 def test_long_chain_of_one_matrix():
     run_case(
         'block = "A: (n, n)\\nf = trace(" + " @ ".join(["A"] * 100) + ")"',
@@ -388,7 +380,6 @@ def test_long_chain_of_one_matrix():
     )
 
 
-@CODEGEN_SLOW
 def test_deeply_nested_solves():
     run_case(
         'block = "A: (n, n)\\nB: (n, n)\\nf = trace(" + "solve(A, " * 60 + "B" + ")" * 60 + ")"',
