@@ -154,3 +154,17 @@ def test_plots_render_to_png():
     assert _plot_png(figure).startswith(b"\x89PNG") and _plot_png(heat).startswith(b"\x89PNG")
     steps, curves = result.checks[0].sweep
     assert "central" in curves and len(steps) == len(curves["central"])
+
+
+def test_under_a_kernel_the_output_shows_table_and_plots(monkeypatch, shell):
+    import gradwright.notebook.check_panel as cp
+
+    monkeypatch.setattr(cp, "_in_kernel", lambda: True)
+    panel = CheckPanel(derive(DEMAND, wrt=["U", "V"]))
+    with capture_output() as cap:  # without a kernel the Output's displays land here
+        panel.button.click()
+    assert panel.last_result.passed
+    html = [o.data["text/html"] for o in cap.outputs if "text/html" in o.data]
+    assert any("relative error" in h and "<table" in h for h in html)
+    widgets = [o.data for o in cap.outputs if "application/vnd.jupyter.widget-view+json" in o.data]
+    assert widgets, "the plots are shown as image widgets"

@@ -143,6 +143,14 @@ def _table_html(result: CheckResult) -> str:
     )
 
 
+def _in_kernel() -> bool:
+    """True under a Jupyter kernel, where widgets render; False in a terminal shell."""
+    from IPython import get_ipython
+
+    shell = get_ipython()
+    return shell is not None and getattr(shell, "kernel", None) is not None
+
+
 class CheckPanel:
     """Finite-difference check of a derivation, as ipywidgets.
 
@@ -306,6 +314,15 @@ class CheckPanel:
         self.runs += 1
         self.status.value = "<span style='color:#555'>running&hellip;</span>"
         self.button.disabled = True
+        if not _in_kernel():
+            # A terminal has no widget to show the table and plots in: keep the result only.
+            try:
+                result = self._run_inside()
+            finally:
+                self.button.disabled = False
+            self.last_result = result
+            self.status.value = _status_html(result, self.runs)
+            return result
         try:
             with self.output:
                 self.output.clear_output(wait=True)
