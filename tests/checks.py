@@ -423,6 +423,14 @@ def jax_reference(block_text: str, sizes: dict):
                 if name == "eye":
                     return jnp.eye(dims[0])
                 return (jnp.ones if name == "ones" else jnp.zeros)(tuple(dims))
+            if name == "commutation":
+                m, n = (dim(a) for a in node.args)
+                # K vec(A) = vec(A^T) for A of shape (m, n) (Henderson and Searle, 1981)
+                k = np.zeros((m * n, m * n))
+                for i in range(m):
+                    for j in range(n):
+                        k[j + i * n, i + j * m] = 1.0
+                return jnp.asarray(k)
             if name == "mpow":
                 return jnp.linalg.matrix_power(ev(node.args[0], env), int(node.args[1].value))
             if name in _JAX_FUNCS:

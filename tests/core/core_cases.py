@@ -48,7 +48,7 @@ def bug_reason(case, kind="reference"):
     """The known engine bug that makes `case` fail in a check of this kind, or ''."""
     if kind == "reference":
         return case.xfail
-    if kind == "steps-equal":  # also fails wherever the steps cannot be built at all
+    if kind in ("steps-equal", "readoff"):  # also fails wherever steps cannot be built at all
         return KNOWN_BUGS.get((case.id, kind)) or KNOWN_BUGS.get((case.id, "steps"), "")
     return KNOWN_BUGS.get((case.id, kind), "")
 
@@ -209,6 +209,14 @@ G += [
     _c("nested-definitions", "X: (n, k)\nW: (k, p)\nb: (p,)\nH = tanh(X @ W)\nZ = H @ b\nf = logsumexp(Z) + norm(H)", "W b", lambda X, W, b, **_: lse(jnp.tanh(X @ W) @ b) + fnorm(jnp.tanh(X @ W))),
 ]  # fmt: skip
 
+# --- product and literal dims, the commutation matrix ---------------------------------------------
+G += [
+    _c("product-dims", "K: (m*n, p)\nx: (p,)\nf = sum((K @ x) ** 2)", "x K", lambda K, x, **_: jnp.sum((K @ x) ** 2)),
+    _c("kron-product-dims", "A: (m, n)\nB: (p, q)\nK: (m*p, n*q)\nf = trace(kron(A, B).T @ K)", "A B", lambda A, B, K, **_: jnp.trace(jnp.kron(A, B).T @ K)),
+    _c("literal-dims", "A: (3, 2)\nx: (2,)\nf = sum(A @ x) * sum(x)", "x A", lambda A, x, **_: jnp.sum(A @ x) * jnp.sum(x)),
+    _c("commutation", "X: (m, n)\nY: (n, m)\nf = (commutation(m, n) @ vec(X)) @ vec(Y) + sum(X * Y.T)", "X", lambda X, Y, **_: 2 * jnp.sum(X * Y.T)),
+]  # fmt: skip
+
 GRADIENT_CASES = G
 
 # --- vector- and matrix-valued targets -------------------------------------------------------------
@@ -236,6 +244,9 @@ J: list[Case] = [
     _c("map-power", "X: (m, n) positive\nc: ()\nF = X ** 3 + X ** c", "X c", lambda X, c, **_: X**3 + X**c),
     _c("map-solve-vector", "A: (n, n) invertible\nb: (n,)\nF = solve(A, b)", "A b", lambda A, b, **_: jnp.linalg.solve(A, b)),
     _c("map-definitions", "X: (n, k)\nW: (k, p)\nH = sigmoid(X @ W)\nF = H.T @ H", "W", lambda X, W, **_: sig(X @ W).T @ sig(X @ W)),
+    _c("map-symmetric", "S: (n, n) symmetric\nF = S @ S", "S", lambda S, **_: S @ S),
+    _c("map-spd-inverse", "S: (n, n) spd\nF = inv(S)", "S", lambda S, **_: jnp.linalg.inv(S)),
+    _c("map-diagonal", "D: (n, n) diagonal\nA: (n, n)\nF = D @ A @ D", "D", lambda D, A, **_: D @ A @ D),
     _c("map-det-times", "X: (n, n) invertible\nF = det(X) * inv(X)", "X", lambda X, **_: jnp.linalg.det(X) * jnp.linalg.inv(X)),
 ]  # fmt: skip
 
@@ -244,7 +255,16 @@ JACOBIAN_CASES = J
 #: cases whose compact Kronecker form does not exist (diag/diagm/kron of the variable)
 NO_KRONECKER_FORM = {"map-kron", "map-diag", "map-diagm"}
 
-#: (case id, kind of check) -> the engine bug that makes it fail; kinds: "kronecker" (the
-#: compact Jacobian), "steps" (building the steps at all), "steps-equal" (consecutive steps agree)
-#: (bugs 1-3 of ENGINE_BUGS.md were listed here until they were fixed)
-KNOWN_BUGS: dict[tuple[str, str], str] = {}
+#: (case id, kind of check) -> the engine bug that makes it fail
+BUG_SPD_DENSE_JACOBIAN = (
+    "jacobian_function of an spd variable applies the map to the transposed unit directions "
+    "(jvp uses dS = dS^T), so it disagrees with jacobian() and with JAX (ENGINE_BUGS.md bug 7)"
+)
+
+#: kinds: "kronecker" (the compact Jacobian), "dense" (jacobian_function), "steps" (building
+#: the steps at all), "steps-equal" (consecutive steps agree), "readoff" (read-off lines equal
+#: the generated functions). Bugs 1-3 of ENGINE_BUGS.md were listed here until they were fixed.
+KNOWN_BUGS: dict[tuple[str, str], str] = {
+    ("map-spd-inverse", "dense"): BUG_SPD_DENSE_JACOBIAN,
+    ("map-spd-inverse", "readoff"): BUG_SPD_DENSE_JACOBIAN,
+}

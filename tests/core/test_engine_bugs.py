@@ -71,3 +71,12 @@ def test_stationary_point_function_runs():
     y = np.array([1.0, 2.0, 3.0])
     got = d.stationary_point("w").function()(X=X, y=y)
     assert_close(got, np.linalg.lstsq(X, y, rcond=None)[0], 1e-12)
+
+
+@pytest.mark.xfail(strict=True, reason="engine bug 7: dense Jacobian of an spd variable")
+def test_dense_jacobian_of_the_inverse_of_an_spd_variable():
+    d = derive("S: (n, n) spd\nF = inv(S)", wrt="S")
+    S = np.array([[2.0, 0.5], [0.5, 1.0]])
+    Si = np.linalg.inv(S)
+    # d inv(S) = -inv(S) dS inv(S), so d vec / d vec^T = -(inv(S)^T kron inv(S))
+    assert_close(d.jacobian_function("S")(S=S), -np.kron(Si.T, Si), 1e-12)

@@ -87,7 +87,7 @@ def test_differential_steps_evaluate_equal(case):
             prev = value
 
 
-@pytest.mark.parametrize("case", params(ALL_CASES, "steps"))
+@pytest.mark.parametrize("case", params(ALL_CASES, "readoff"))
 def test_read_off_lines_equal_the_generated_functions(case):
     d = _derivation(case)
     arrays = random_point(d, 2)
