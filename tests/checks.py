@@ -2,8 +2,9 @@
 
 Random points that honor shapes and structure words, column-major vec, error measures, a
 central-difference check along random directions that reports both numbers, the JAX
-reference (gradients, Jacobians, JVP/VJP, Hessians), and a combinator that runs one check
-over scalar, vector and matrix shapes.
+reference (gradients, Jacobians, JVP/VJP, Hessians, and `jax_reference`, an independent
+reading of a block as NumPy would compute it), and a combinator that runs one check over
+scalar, vector and matrix shapes.
 """
 
 from __future__ import annotations
