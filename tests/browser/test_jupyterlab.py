@@ -3,7 +3,8 @@
 Serves JupyterLab on 127.0.0.1, runs every cell, waits for typeset math and the check panel,
 presses the panel's button and expects the result text to change. A screenshot is saved in
 ``test-artifacts/``; with ``GRADWRIGHT_UPDATE_SCREENSHOT=1`` it is also copied to
-``docs/screenshot.png`` for the README.
+``docs/screenshot.png`` for the README. ``GRADWRIGHT_BROWSER_NOTEBOOK=path.ipynb`` runs another
+notebook the same way (it needs a check panel).
 """
 
 from __future__ import annotations
