@@ -260,6 +260,38 @@ def check_round_trip(b, counts: Counter) -> None:
     counts["round trip equal"] += 1
 
 
+def check_shapes_mapping(b, counts: Counter) -> None:
+    """A block without definitions, given as one expression plus a `shapes` mapping, derives
+    the same gradients as the block itself."""
+    counts["examples"] += 1
+    lines = b.text.split("\n")
+    if any(" = " in line for line in lines[:-1]):
+        counts["has definitions (not applicable)"] += 1
+        return
+    shapes = {}
+    for line in lines[:-1]:
+        name, spec = line.split(":", 1)
+        shapes[name.strip()] = spec.strip()
+    expr = lines[-1].split("=", 1)[1].strip()
+    try:
+        d_block = derive(b.text, wrt=list(b.wrt))
+        grads = d_block.gradient_function() if d_block.is_scalar else None
+    except FormulaError:
+        counts["refused (FormulaError)"] += 1
+        return
+    d_expr = derive(expr, wrt=list(b.wrt), shapes=shapes)
+    if grads is not None:
+        for v in b.wrt:
+            assert d_expr.gradient(v) == d_block.gradient(v), (b.text, v)
+    arrays = random_point(d_block, 0, sizes=FUZZ_SIZES)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)
+        want = d_block.function()(**arrays)
+        got = d_expr.function()(**arrays)
+    assert np.array_equal(np.asarray(got), np.asarray(want), equal_nan=True), b.text
+    counts["same derivation"] += 1
+
+
 def _check_hvp(d, ref, arrays, rng, where, counts) -> None:
     v = d.variables[0]
     try:
@@ -329,6 +361,11 @@ def test_fuzz_displayed_steps_of_valid_blocks():
 def test_fuzz_text_printer_round_trip():
     counts = _run(blocks(), CI_EXAMPLES, "text round trip (CI)", True, check_round_trip)
     assert counts["round trip equal"] >= 0.9 * counts["examples"], counts
+
+
+def test_fuzz_single_expression_with_shapes_mapping():
+    counts = _run(blocks(), CI_EXAMPLES // 2, "shapes mapping (CI)", True, check_shapes_mapping)
+    assert counts["same derivation"] >= 0.5 * counts["examples"], counts
 
 
 @pytest.mark.parametrize("which", ["valid", "mutations", "steps"])
