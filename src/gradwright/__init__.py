@@ -11,6 +11,8 @@ fast NumPy code for them.
 
 from __future__ import annotations
 
+import numbers
+
 from .derivation import Derivation, Step, SymbolInfo
 from .errors import FormulaError, NotSupportedError
 
@@ -79,9 +81,17 @@ def derive(text: str, wrt, *, shapes: dict | None = None, sizes: dict | None = N
             )
         seen.append(w)
     if sizes is not None:
+        if not isinstance(sizes, dict):
+            raise FormulaError(
+                f"sizes must be a mapping from dim names to integers, like {{'n': 1000}}, "
+                f"got {type(sizes).__name__}"
+            )
+        checked = {}
         for k, v in sizes.items():
-            if isinstance(v, bool) or not isinstance(v, int) or v <= 0:
+            if isinstance(v, bool) or not isinstance(v, numbers.Integral) or v <= 0:
                 raise FormulaError(f"sizes[{k!r}] must be a positive integer, got {v!r}")
+            checked[k] = int(v)
+        sizes = checked
     return Derivation(block, tuple(seen), sizes)
 
 
