@@ -129,7 +129,16 @@ class Derivation:
     def arguments(self) -> list[str]:
         """The symbols every generated function requires (in block order): those the target
         uses, and every variable (a gradient is shaped like its variable)."""
-        used = self.expr.symbols | set(self.variables)
+        used = set(self.expr.symbols) | set(self.variables)
+        bound = {
+            name for n in used for d in self.block.declarations[n].shape if d for name in d.names
+        }
+        for node in E.walk(self.expr):  # dims the target needs (eye(n), ones(n)) from any symbol
+            for d in node.shape:
+                for name in d.names if d is not None else ():
+                    if name not in bound and name in self.block.dims:
+                        used.add(self.block.dims[name][0][0])
+                        bound.add(name)
         return [n for n in self.block.declarations if n in used]
 
     def __repr__(self):

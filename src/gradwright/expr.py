@@ -659,7 +659,9 @@ def _is_symmetric(e: Expr) -> bool:
     if t is Symbol:
         return bool(e.structure & SYMMETRIC_WORDS)
     if t is Differential:
-        return bool(e.symbol.structure & SYMMETRIC_WORDS)
+        # dX is not assumed symmetric even when X is: JVPs and dense Jacobians take any
+        # direction, and gradients are projected onto the structure afterwards
+        return False
     if t in (Identity, Diagm, Zero, Ones):
         return True
     if t is Commutation:

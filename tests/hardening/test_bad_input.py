@@ -180,15 +180,10 @@ def test_numpy_integers_are_dims():
     assert d.target_shape == ()
 
 
-@pytest.mark.xfail(
-    strict=True,
-    raises=AttributeError,
-    reason="derive() calls sizes.items() without checking that sizes is a mapping "
-    "(NEEDS_FROM_CORE.md: 'smaller points')",
-)
 def test_sizes_that_is_not_a_mapping():
     with pytest.raises(FormulaError, match="sizes"):
         derive("X: (n,)\nf = sum(X)", wrt="X", sizes="n=3")
+    assert derive("X: (n,)\nf = sum(X)", wrt="X", sizes={"n": np.int64(3)}).size_hints == {"n": 3}
 
 
 # odd but small text: each is derived or refused with a FormulaError, nothing else
