@@ -256,15 +256,7 @@ JACOBIAN_CASES = J
 NO_KRONECKER_FORM = {"map-kron", "map-diag", "map-diagm"}
 
 #: (case id, kind of check) -> the engine bug that makes it fail
-BUG_SPD_DENSE_JACOBIAN = (
-    "jacobian_function of an spd variable applies the map to the transposed unit directions "
-    "(jvp uses dS = dS^T), so it disagrees with jacobian() and with JAX (ENGINE_BUGS.md bug 7)"
-)
-
 #: kinds: "kronecker" (the compact Jacobian), "dense" (jacobian_function), "steps" (building
 #: the steps at all), "steps-equal" (consecutive steps agree), "readoff" (read-off lines equal
-#: the generated functions). Bugs 1-3 of ENGINE_BUGS.md were listed here until they were fixed.
-KNOWN_BUGS: dict[tuple[str, str], str] = {
-    ("map-spd-inverse", "dense"): BUG_SPD_DENSE_JACOBIAN,
-    ("map-spd-inverse", "readoff"): BUG_SPD_DENSE_JACOBIAN,
-}
+#: the generated functions). Bugs 1-3 and 7 of ENGINE_BUGS.md were listed here while open.
+KNOWN_BUGS: dict[tuple[str, str], str] = {}

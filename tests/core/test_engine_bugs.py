@@ -7,7 +7,6 @@ into a failure, and the marker should be removed. Fixed bugs stay here as regres
 from __future__ import annotations
 
 import numpy as np
-import pytest
 
 from checks import assert_close
 from gradwright import derive
@@ -49,8 +48,8 @@ def test_gradient_of_a_target_that_simplifies_to_a_constant():
     assert_close(d.gradient_function("x")(x=np.ones(3)), np.zeros(3), 0.0)
 
 
-@pytest.mark.xfail(strict=True, raises=ValueError, reason="engine bug 4b: dim n never bound")
 def test_value_with_a_dim_bound_only_by_an_unused_symbol():
+    """Regression: bug 4b (fixed)."""
     d = derive("c: ()\nx: (n,)\nf = c * sum(ones(n))", wrt="c")
     # x fixes n = 3; the function should accept it (or derive() should refuse the block)
     assert_close(d.function()(c=2.0, x=np.ones(3)), 6.0, 1e-15)
@@ -73,8 +72,8 @@ def test_stationary_point_function_runs():
     assert_close(got, np.linalg.lstsq(X, y, rcond=None)[0], 1e-12)
 
 
-@pytest.mark.xfail(strict=True, reason="engine bug 7: dense Jacobian of an spd variable")
 def test_dense_jacobian_of_the_inverse_of_an_spd_variable():
+    """Regression: bug 7 (fixed)."""
     d = derive("S: (n, n) spd\nF = inv(S)", wrt="S")
     S = np.array([[2.0, 0.5], [0.5, 1.0]])
     Si = np.linalg.inv(S)
