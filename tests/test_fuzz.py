@@ -83,14 +83,21 @@ def _event(name: str) -> None:
         pass
 
 
-def known_bug(err: BaseException) -> str:
+def known_bug(err: BaseException, b=None) -> str:
     """The open engine bug (tests/core/ENGINE_BUGS.md) an exception is a symptom of, or ''.
 
     Known bugs are counted, not failed on, so that the fuzzer keeps looking for new ones while
-    a bug is open; each has a strict-xfail reproduction in tests/core/test_engine_bugs.py. None
-    is open now: bug 4 (a KeyError or "is not known from the arrays passed" raised in the
-    generated code) was matched here until it was fixed.
+    a bug is open; each has a strict-xfail reproduction in tests/core/test_engine_bugs.py.
+    (Bug 4, a KeyError or "is not known from the arrays passed" raised in the generated code,
+    was matched here until it was fixed.)
     """
+    if (
+        type(err).__name__ == "LinAlgError"
+        and "singular" in str(err)
+        and b is not None
+        and "det(" in b.text.replace("logdet(", "")
+    ):
+        return "known engine bug 8 (the gradient of det at a singular matrix)"
     return ""
 
 
@@ -106,7 +113,7 @@ def check_block(b, counts: Counter) -> None:
     except AssertionError:
         raise
     except Exception as err:
-        bug = known_bug(err)
+        bug = known_bug(err, b)
         if not bug:
             raise
         counts[bug] += 1
@@ -181,7 +188,12 @@ def _check_block(b, counts: Counter) -> None:
     _event("derived and matched")
 
 
-STEP_RTOL = 1e-5  # d(...) in early steps is a finite difference in the reference evaluator
+# steps without pending d(...) are exact and must agree tightly; a pending d(...) is a 4th-order
+# central difference (h = 1e-3) in the reference evaluator, whose truncation error grows with
+# the curvature (exp of a large argument): those pairs get a loose bound, and on a miss are
+# evaluated again along directions 10x shorter (the steps are linear in the differentials)
+STEP_RTOL_EXACT = 1e-8
+STEP_RTOL_FD = 1e-4
 
 
 def _fd_noise(e, arrays) -> float:
@@ -196,6 +208,10 @@ def _fd_noise(e, arrays) -> float:
     return out
 
 
+def _pending(e) -> bool:
+    return any(type(node) is E.D for node in E.walk(e))
+
+
 def check_steps(b, counts: Counter) -> None:
     """Every "differential" step of a random block's derivation equals the one before it."""
     counts["examples"] += 1
@@ -208,31 +224,38 @@ def check_steps(b, counts: Counter) -> None:
     arrays = random_point(d, 0, sizes=FUZZ_SIZES)
     rng = np.random.default_rng(2)
     diffs = {v: random_direction(d.symbols[v], arrays[v], rng) for v in d.variables}
-    prev = None
-    noise = 0.0
+    lines = [s for s in steps if s.kind == "differential"]
+
+    def value(step, t=1.0):
+        dx = {v: t * x for v, x in diffs.items()}
+        out = np.asarray(evaluate(step.expr, arrays, differentials=dx, dims=FUZZ_SIZES), float)
+        return out / t
+
+    def gap(prev, cur, t=1.0):
+        a, b_ = value(prev, t), value(cur, t)
+        if cur.lhs_latex.startswith(r"\operatorname{vec}"):
+            a, b_ = vec(a), b_.reshape(-1)
+        if not _finite(a, b_):
+            return None
+        scale = max(np.linalg.norm(a), np.linalg.norm(b_), 1e-8)
+        if _pending(prev.expr) or _pending(cur.expr):
+            noise = (_fd_noise(prev.expr, arrays) + _fd_noise(cur.expr, arrays)) / t
+            return np.linalg.norm(a - b_) / (STEP_RTOL_FD * scale + noise)
+        return np.linalg.norm(a - b_) / (STEP_RTOL_EXACT * scale)
+
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", RuntimeWarning)
-        for i, step in enumerate(steps):
-            if step.kind != "differential":
-                continue
-            value = np.asarray(
-                evaluate(step.expr, arrays, differentials=diffs, dims=FUZZ_SIZES), dtype=float
-            )
-            if not _finite(value):
+        for prev, cur in zip(lines, lines[1:]):
+            g = gap(prev, cur)
+            if g is None:
                 counts["skipped (not finite)"] += 1
                 return
-            if step.lhs_latex.startswith(r"\operatorname{vec}"):
-                value, want = value.reshape(-1), vec(prev)
-            else:
-                want = prev
-            noise = max(noise, _fd_noise(step.expr, arrays))
-            if prev is not None:
-                scale = max(np.linalg.norm(value), np.linalg.norm(want), 1e-8)
-                assert np.linalg.norm(value - want) <= STEP_RTOL * scale + noise, (
-                    f"step {i} [{step.rule}] differs from the one before\n{b.text}\n"
-                    f"wrt {b.wrt}\n  {step.text()}\n  previous: {steps[i - 1].text()}"
-                )
-            prev = value
+            if g > 1 and (_pending(prev.expr) or _pending(cur.expr)):
+                g = gap(prev, cur, 0.1)
+            assert g is None or g <= 1, (
+                f"step [{cur.rule}] differs from the one before\n{b.text}\n"
+                f"wrt {b.wrt}\n  {cur.text()}\n  previous: {prev.text()}"
+            )
     counts["steps all equal"] += 1
 
 

@@ -7,6 +7,7 @@ into a failure, and the marker should be removed. Fixed bugs stay here as regres
 from __future__ import annotations
 
 import numpy as np
+import pytest
 
 from checks import assert_close
 from gradwright import derive
@@ -79,3 +80,13 @@ def test_dense_jacobian_of_the_inverse_of_an_spd_variable():
     Si = np.linalg.inv(S)
     # d inv(S) = -inv(S) dS inv(S), so d vec / d vec^T = -(inv(S)^T kron inv(S))
     assert_close(d.jacobian_function("S")(S=S), -np.kron(Si.T, Si), 1e-12)
+
+
+@pytest.mark.xfail(strict=True, raises=np.linalg.LinAlgError, reason="engine bug 8: det gradient")
+def test_gradient_of_det_at_a_singular_matrix():
+    d = derive("X: (n, n)\nf = det(X)", wrt="X")
+    X = np.array([[1.0, 2.0], [2.0, 4.0]])
+    # d det(X) = tr(adj(X) dX), so the gradient is the cofactor matrix adj(X)^T, which exists
+    # for every X (The Matrix Cookbook (2012) eq. (49) is its form for invertible X)
+    cofactor = np.array([[X[1, 1], -X[1, 0]], [-X[0, 1], X[0, 0]]])
+    assert_close(d.gradient_function("X")(X=X), cofactor, 1e-14)
