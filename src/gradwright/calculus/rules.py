@@ -98,28 +98,25 @@ def _diagm(x, d):
 # --- products ---------------------------------------------------------------------------------
 
 
-@rule(E.Mul, "product rule")
-def _mul(x, d):
+def _product_rule(x, d, build):
+    """d(f1 f2 ... fk) = sum_i f1 ... d(fi) ... fk, for entrywise and matrix products alike."""
     terms = []
     fs = x.args
     for i, f in enumerate(fs):
         df = d(f)
-        if E.is_zero(df):
-            continue
-        terms.append(E.mul(*fs[:i], df, *fs[i + 1 :]))
+        if not E.is_zero(df):
+            terms.append(build(*fs[:i], df, *fs[i + 1 :]))
     return E.add(*terms) if terms else _zero(x)
+
+
+@rule(E.Mul, "product rule")
+def _mul(x, d):
+    return _product_rule(x, d, E.mul)
 
 
 @rule(E.MatMul, "product rule")
 def _matmul(x, d):
-    terms = []
-    fs = x.args
-    for i, f in enumerate(fs):
-        df = d(f)
-        if E.is_zero(df):
-            continue
-        terms.append(E.matmul(*fs[:i], df, *fs[i + 1 :]))
-    return E.add(*terms) if terms else _zero(x)
+    return _product_rule(x, d, E.matmul)
 
 
 @rule(E.Kron, "Kronecker product rule")

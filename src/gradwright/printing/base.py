@@ -43,6 +43,19 @@ class Printer:
         raise NotImplementedError(f"{type(self).__name__} cannot print {type(e).__name__}")
 
 
+def join_terms(texts) -> str:
+    """a + b, with a term that starts with a minus joined as a - b."""
+    out = ""
+    for i, text in enumerate(texts):
+        if i == 0:
+            out = text
+        elif text.startswith("-"):
+            out += " - " + text[1:]
+        else:
+            out += " + " + text
+    return out
+
+
 def chain_segments(factors) -> list[list]:
     """Split a product chain where the inner axis is the unit axis (an outer product)."""
     segments = [[factors[0]]]

@@ -6,7 +6,7 @@ import re
 
 from .. import expr as E
 from . import precedence as P
-from .base import Printer, fraction_text, split_numerator
+from .base import Printer, fraction_text, join_terms, split_numerator
 
 GREEK = {
     "alpha", "beta", "gamma", "delta", "epsilon", "zeta", "eta", "theta", "iota", "kappa",
@@ -116,18 +116,11 @@ class LatexPrinter(Printer):
     # --- sums and products ---------------------------------------------------------------------
 
     def _print_Add(self, e):
-        out = ""
-        for i, t in enumerate(e.args):
+        texts = []
+        for t in e.args:
             text = self._print(t)
-            if P.latex_precedence(t) < P.ADD:
-                text = rf"\left({text}\right)"
-            if i == 0:
-                out = text
-            elif text.startswith("-"):
-                out += " - " + text[1:]
-            else:
-                out += " + " + text
-        return out
+            texts.append(rf"\left({text}\right)" if P.latex_precedence(t) < P.ADD else text)
+        return join_terms(texts)
 
     def _print_Mul(self, e):
         coef, num, den = split_numerator(e)

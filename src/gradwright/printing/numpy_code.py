@@ -13,7 +13,7 @@ from types import SimpleNamespace
 
 from .. import expr as E
 from . import precedence as P
-from .base import chain_segments, segment_shape, split_numerator
+from .base import split_numerator
 from .text import TextPrinter
 
 # ---------------------------------------------------------------------------------------------
@@ -462,23 +462,6 @@ class NumpyPrinter(TextPrinter):
         if len(num) == 1 and type(num[0]) is E.Ones and not den:
             return f"{self._print(E.Const(coef))} * {self._print(num[0])}"
         return super()._print_Mul(e)
-
-    def _print_MatMul(self, e):
-        segments = chain_segments(e.args)
-        scalars, vectors = [], []
-        for seg in segments:
-            s = self.segment(seg)
-            if E.is_scalar_shape(segment_shape(seg)):
-                scalars.append(s if len(segments) == 1 else f"({s})")
-            else:
-                vectors.append(s)
-        if len(vectors) == 2:
-            core = f"np.outer({vectors[0]}, {vectors[1]})"
-        elif len(vectors) == 1:
-            core = vectors[0] if not scalars else f"({vectors[0]})"
-        else:
-            core = ""
-        return " * ".join(scalars + ([core] if core else []))
 
     def segment(self, seg) -> str:
         """One product without unit inner axes: diagonal factors folded in, cost-ordered."""

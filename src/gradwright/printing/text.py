@@ -4,7 +4,14 @@ from __future__ import annotations
 
 from .. import expr as E
 from . import precedence as P
-from .base import Printer, chain_segments, fraction_text, segment_shape, split_numerator
+from .base import (
+    Printer,
+    chain_segments,
+    fraction_text,
+    join_terms,
+    segment_shape,
+    split_numerator,
+)
 
 
 class TextPrinter(Printer):
@@ -64,16 +71,7 @@ class TextPrinter(Printer):
         return self.fn("commutation", self.dim(e.args[0]), self.dim(e.args[1]))
 
     def _print_Add(self, e):
-        out = ""
-        for i, t in enumerate(e.args):
-            text = self.paren(t, P.ADD)
-            if i == 0:
-                out = text
-            elif text.startswith("-"):
-                out += " - " + text[1:]
-            else:
-                out += " + " + text
-        return out
+        return join_terms(self.paren(t, P.ADD) for t in e.args)
 
     def _print_Mul(self, e):
         coef, num, den = split_numerator(e)
