@@ -145,6 +145,19 @@ def _gw_cho(a, label):
             f"{label} is not positive definite (it is declared spd)"
         ) from None
 """,
+    "_gw_adjugate": """
+def _gw_adjugate(a):
+    \"\"\"adj(A) = det(A) inv(A); through the SVD where A is singular, where it still exists.\"\"\"
+    d = np.linalg.det(a)
+    if d != 0 and np.isfinite(d):
+        try:
+            return d * np.linalg.inv(a)
+        except np.linalg.LinAlgError:
+            pass
+    u, s, vt = np.linalg.svd(a)
+    others = np.array([np.prod(np.delete(s, i)) for i in range(s.shape[0])])
+    return np.linalg.det(u) * np.linalg.det(vt) * ((vt.T * others) @ u.T)
+""",
     "_gw_sigmoid": """
 def _gw_sigmoid(x):
     return 0.5 * (1.0 + np.tanh(0.5 * x))
@@ -461,7 +474,28 @@ class NumpyPrinter(TextPrinter):
         coef, num, den = split_numerator(e)
         if len(num) == 1 and type(num[0]) is E.Ones and not den:
             return f"{self._print(E.Const(coef))} * {self._print(num[0])}"
+        adjugate = self._adjugate(e)
+        if adjugate is not None:
+            return adjugate
         return super()._print_Mul(e)
+
+    def _adjugate(self, e: E.Mul) -> str | None:
+        """det(A) inv(B) with B = A or A.T is adj(B): defined (and computed) at singular A too."""
+        fs = list(e.args)
+        for i, f in enumerate(fs):
+            if type(f) is not E.Det:
+                continue
+            a = f.args[0]
+            for j, g in enumerate(fs):
+                if type(g) is E.Inverse and g.args[0] in (a, E.transpose(a)):
+                    self.use("_gw_adjugate")
+                    adj = f"_gw_adjugate({self._print(g.args[0])})"
+                    rest = [x for k, x in enumerate(fs) if k not in (i, j)]
+                    if not rest:
+                        return adj
+                    other = rest[0] if len(rest) == 1 else E.Mul(*rest)
+                    return f"{self.paren(other, P.PRODUCT + 1)} * {adj}"
+        return None
 
     def segment(self, seg) -> str:
         """One product without unit inner axes: diagonal factors folded in, cost-ordered."""
