@@ -155,6 +155,13 @@ def fit_namespace(derivation, namespace: dict, names) -> tuple[dict, dict, dict]
         info = derivation.symbols.get(name)
         if info is None:
             continue
+        if np.iscomplexobj(namespace[name]):
+            # casting would drop the imaginary part and check a different point
+            refused[name] = (
+                f"is a complex array, but {name} is declared real (declare it complex, or pass "
+                f"{name}.real)"
+            )
+            continue
         try:
             value = np.asarray(namespace[name], dtype=float)
         except (TypeError, ValueError):
@@ -249,7 +256,16 @@ class _Evaluator:
             base = self.at(0.0 * direction) if f0 is None else f0
             return (self.at(h * direction) - base) / h
         if method == "complex step":
-            return np.imag(self.at(1j * h * direction)) / h
+            # the generated functions refuse complex arrays for real-declared symbols; the
+            # complex step is the one place where a complex input is meant
+            flag = self.function.__globals__.get("_GW_COMPLEX_STEP")
+            if flag is not None:
+                flag.append(True)
+            try:
+                return np.imag(self.at(1j * h * direction)) / h
+            finally:
+                if flag is not None:
+                    flag.pop()
         raise ValueError(f"unknown method {method!r}")
 
 

@@ -32,6 +32,10 @@ class _GwDims(dict):
         )
 
 
+# set only while the finite-difference check evaluates the value function at a complex step
+_GW_COMPLEX_STEP = []
+
+
 def _gw_check(specs):
     """Validate the arguments; returns the arrays and the dims they bind."""
     dims, owner, out, products = _GwDims(), {}, [], []
@@ -47,6 +51,17 @@ def _gw_check(specs):
         if a.dtype.kind not in "biufc":
             got = f"dtype {a.dtype}" if isinstance(value, np.ndarray) else type(value).__name__
             raise TypeError(f"{name} must be a numeric array, got {got}")
+        if a.dtype.kind == "c" and not _GW_COMPLEX_STEP:
+            if " " in name:  # a direction or cotangent, not a declared symbol
+                raise TypeError(
+                    f"{name} is a complex array, but the block is real: pass a real array"
+                )
+            shown = "(" + ", ".join(map(str, spec)) + ("," if len(spec) == 1 else "") + ")"
+            raise TypeError(
+                f"{name} is a complex array, but {name} is declared real: the derivative of a "
+                f"real formula is wrong for complex input. Declare it `{name}: {shown} complex` "
+                f"or pass a real array (for example {name}.real)"
+            )
         if a.dtype.kind in "bi":
             a = a.astype(float)
         if a.ndim != len(spec):
