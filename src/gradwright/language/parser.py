@@ -8,14 +8,18 @@ from __future__ import annotations
 import ast
 import builtins
 import difflib
+import importlib
 import keyword
 import numbers
+import os as _os
+import pkgutil
 import re
 from dataclasses import dataclass, field
 from fractions import Fraction
 
 from .. import expr as E
 from ..errors import FormulaError, NotSupportedError, ShapeError
+from .registry import CALLS
 
 STRUCTURE_WORDS = ("symmetric", "spd", "diagonal", "positive", "orthogonal", "square", "invertible")
 _SQUARE_WORDS = {"symmetric", "spd", "diagonal", "orthogonal", "square", "invertible"}
@@ -42,6 +46,15 @@ FUNCTIONS = {
     "zeros": (1, 2), "outer": (2, 2), "mpow": (2, 2), "commutation": (2, 2),
     **{f: (1, 1) for f in E.ELEMENTWISE},
 }  # fmt: skip
+
+# the families of functions in `calls_*.py` modules register themselves in CALLS
+for _module in sorted(m.name for m in pkgutil.iter_modules([_os.path.dirname(__file__)])):
+    if _module.startswith("calls_"):
+        importlib.import_module(f"{__package__}.{_module}")
+for _name, _spec in CALLS.items():
+    if _name in FUNCTIONS:  # pragma: no cover - a programming error caught at import
+        raise AssertionError(f"function {_name} is both a core and a registered function")
+    FUNCTIONS[_name] = (_spec.min_args, _spec.max_args)
 
 # names the generated module binds at module level (its imports); a symbol of the same name
 # would shadow them inside the generated functions
@@ -1079,8 +1092,18 @@ class _Reader:
             self.fail_node(
                 f"unknown function {fname!r}: dunder names {_not_in_language('are')}", node.func
             )
-        if node.keywords:
-            kw = node.keywords[0]
+        spec = CALLS.get(fname)
+        accepted = spec.keywords if spec is not None else ()
+        bad_keywords = [kw for kw in node.keywords if kw.arg not in accepted]
+        if bad_keywords:
+            kw = bad_keywords[0]
+            if accepted:
+                shown = f"{kw.arg}=" if kw.arg else "**"
+                self.fail_node(
+                    f"{fname} takes the keyword argument{'s' if len(accepted) > 1 else ''} "
+                    f"{', '.join(a + '=' for a in accepted)} only, not {shown}",
+                    kw if hasattr(kw, "lineno") else kw.value,
+                )
             shown = f"{kw.arg}=" if kw.arg else "**"
             self.fail_node(
                 f"keyword arguments like {shown}... {_not_in_language('are')} "
@@ -1111,8 +1134,11 @@ class _Reader:
         lo, hi = FUNCTIONS[fname]
         n = len(node.args)
         if not lo <= n <= hi:
-            want = str(lo) if lo == hi else f"{lo} or {hi}"
+            want = str(lo) if lo == hi else f"{lo} or {hi}" if hi == lo + 1 else f"{lo} to {hi}"
             self.fail_node(f"{fname} takes {want} argument{'s' if hi > 1 else ''}, got {n}", node)
+        if spec is not None:
+            args = node.args if spec.raw else [self.tr(a, depth) for a in node.args]
+            return spec.builder(self, node, args, {kw.arg: kw.value for kw in node.keywords})
         if fname in ("eye", "ones", "zeros", "commutation"):
             dims = [self.dim_arg(a) for a in node.args]
             if fname == "eye":
