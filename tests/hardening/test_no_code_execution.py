@@ -130,6 +130,8 @@ def test_generated_source_uses_only_known_identifiers(block, wrt):
         if isinstance(stmt, (ast.Import, ast.ImportFrom)):
             assert ast.unparse(stmt) in IMPORTS
             continue
+        if isinstance(stmt, ast.Assign) and ast.dump(stmt) in helper_text:
+            continue  # a helper's own module-level state, verbatim from HELPERS
         if isinstance(stmt, ast.Assign):  # a table of the generated functions, by name
             (target,) = stmt.targets
             assert isinstance(target, ast.Name) and target.id.startswith("_gw_")
