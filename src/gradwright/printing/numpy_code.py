@@ -14,6 +14,7 @@ from types import SimpleNamespace
 from .. import expr as E
 from . import precedence as P
 from .base import split_numerator
+from .checks import check_code, finite_lines
 from .costmodel import (  # noqa: F401 - public names kept importable from here
     MAX_DP_CHAIN,
     CostModel,
@@ -79,17 +80,17 @@ class NumpyPrinter(TextPrinter):
         return repr(float(v))
 
     def _print_Identity(self, e):
-        return f"np.eye({self.dim(e.args[0])})"
+        return f"np.eye({self.dim(e.args[0])}, dtype=_dims.dtype)"
 
     def _print_Ones(self, e):
-        return f"np.ones({self.shape_tuple(e.shape)})"
+        return f"np.ones({self.shape_tuple(e.shape)}, dtype=_dims.dtype)"
 
     def _print_Zero(self, e):
-        return f"np.zeros({self.shape_tuple(e.shape)})"
+        return f"np.zeros({self.shape_tuple(e.shape)}, dtype=_dims.dtype)"
 
     def _print_Commutation(self, e):
         self.use("_gw_commutation")
-        return f"_gw_commutation({self.dim(e.args[0])}, {self.dim(e.args[1])})"
+        return f"_gw_commutation({self.dim(e.args[0])}, {self.dim(e.args[1])}, _dims.dtype)"
 
     def _print_Mul(self, e):
         coef, num, den = split_numerator(e)
@@ -230,6 +231,7 @@ class NumpyPrinter(TextPrinter):
     def _spd_factor(self, a: E.Expr) -> str | None:
         if E.is_spd(a) and self.gen.use_cholesky:
             self.use("_gw_cho")
+            self.use("_gw_cho_solve")
             return self.gen.cholesky_for(a, self)
         return None
 
@@ -245,7 +247,7 @@ class NumpyPrinter(TextPrinter):
         a = e.args[0]
         cho = self._spd_factor(a)
         if cho is not None:
-            return f"cho_solve({cho}, np.eye({self.dim(a.shape[0])}))"
+            return f"_gw_cho_solve({cho}, np.eye({self.dim(a.shape[0])}, dtype=_dims.dtype))"
         self.use("_gw_inv")
         return f"_gw_inv({self._print(a)}, {self.label(a)})"
 
@@ -253,7 +255,7 @@ class NumpyPrinter(TextPrinter):
         a, b = e.args
         cho = self._spd_factor(a)
         if cho is not None:
-            return f"cho_solve({cho}, {self._print(b)})"
+            return f"_gw_cho_solve({cho}, {self._print(b)})"
         self.use("_gw_solve")
         return f"_gw_solve({self._print(a)}, {self._print(b)}, {self.label(a)})"
 
@@ -373,6 +375,7 @@ class CodeGen:
         self.directions: dict = {}
         self.lines: list[str] = []
         self.cholesky: dict = {}
+        self.module_lines: list[str] = []
 
     def arg_name(self, name: str) -> str:
         if keyword.iskeyword(name) or name.startswith("_"):  # pragma: no cover - parser refuses
@@ -405,22 +408,16 @@ class CodeGen:
             return f"({parts[0]},)"
         return "(" + ", ".join(parts) + ")"
 
-    def check_lines(self, direction) -> list[str]:
-        names = list(self.required)
-        specs = [f"({n!r}, {n}, {self.spec_of(self.symbols[n].shape)})" for n in names]
+    def check_lines(self, direction, fname: str = "f") -> list[str]:
+        """The argument checks of one function; their module-level cache goes to self.module."""
+        entries = [(n, n, self.spec_of(self.symbols[n].shape)) for n in self.required]
         if direction is not None:
             pname, _sym, shape = direction
-            specs.append(f"({_direction_label(direction)!r}, {pname}, {self.spec_of(shape)})")
-            names.append(pname)
-        if not specs:
-            return ["    _dims = {}"]
+            entries.append((_direction_label(direction), pname, self.spec_of(shape)))
         self.helpers.add("_gw_check")
-        targets = ", ".join(names) + ("," if len(names) == 1 else "")
-        return [
-            f"    ({targets}), _dims = _gw_check((",
-            *[f"        {s}," for s in specs],
-            "    ))",
-        ]
+        module_lines, body = check_code(fname, entries)
+        self.module_lines = module_lines
+        return body
 
     def function(self, spec: FunctionSpec) -> str:
         self.temps, self.lines, self.cholesky = {}, [], {}
@@ -432,7 +429,7 @@ class CodeGen:
                 self.directions = {sym: pname}
         head = [f"def {spec.name}({self.signature(direction[0] if direction else None)}):"]
         head.append(f'    """{spec.doc}"""')
-        head += self.check_lines(direction)
+        head += self.check_lines(direction, spec.name)
         exprs = [o.expr for o in spec.outputs]
         shared = _shared_nodes(exprs)
         counter = [0]
@@ -464,16 +461,14 @@ class CodeGen:
             emit(o.expr)
             text = printer._print(o.expr)
             self.lines.append(f"    {o.name} = {text}")
-            if not E.is_matrix_shape(o.shape) and not E.is_scalar_shape(o.shape):
-                pass
             self.helpers.add("_gw_finite")
-            self.lines.append(f"    _gw_finite({o.name}, {o.what!r})")
+            self.lines += finite_lines(o.name, o.shape, o.what)
         body = head + self.lines
         if spec.loop:
             body.append(spec.loop)
         body.append(f"    return {spec.returns}")
         self.directions = {}
-        return "\n".join(body)
+        return "\n".join([*self.module_lines, "", ""] * bool(self.module_lines) + body)
 
 
 def _direction_label(direction) -> str:
@@ -520,10 +515,9 @@ def _trivial(node) -> bool:
 
 
 def module(header: str, functions: list[str], helpers: set, uses_scipy: bool) -> str:
-    """The whole generated module text (runs with NumPy, and SciPy for spd symbols)."""
-    lines = [header, "import warnings", "", "import numpy as np"]
-    if uses_scipy:
-        lines.append("from scipy.linalg import cho_factor, cho_solve")
+    """The whole generated module text (runs with NumPy; SciPy is imported on the first call
+    that factors an spd matrix)."""
+    lines = [header, "import cmath", "import warnings", "", "import numpy as np"]
     lines.append("")
     for name in sorted(helpers):
         lines.append(HELPERS[name].rstrip())
@@ -533,7 +527,8 @@ def module(header: str, functions: list[str], helpers: set, uses_scipy: bool) ->
         lines.append("")
         lines.append(f)
         lines.append("")
-        names.append(f[4 : f.index("(")])
+        at = f.index("def ") + 4
+        names.append(f[at : f.index("(", at)])
     # the dense Jacobian and Hessian loops call the products through this table, so that no
     # user symbol of the same name can shadow them
     lines.append("")
