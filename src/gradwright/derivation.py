@@ -363,7 +363,7 @@ class Derivation:
         return True
 
     def _cost(self) -> C.CostModel:
-        return C.CostModel(C.guess_sizes(self.expr, self.size_hints))
+        return C.CostModel(C.guess_sizes(self.expr, self.size_hints), hinted=self.size_hints)
 
     def _specs(self) -> list:
         tgt_shape = self.expr.shape

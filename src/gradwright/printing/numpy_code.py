@@ -9,11 +9,18 @@ from __future__ import annotations
 
 import keyword
 from dataclasses import dataclass, field
-from types import SimpleNamespace
 
 from .. import expr as E
 from . import precedence as P
 from .base import split_numerator
+from .calltime import (
+    CallTimeChoice,
+    chain_candidates,
+    chain_dims,
+    choice_text,
+    poly_text,
+    tree_cost,
+)
 from .checks import check_code, finite_lines
 from .costmodel import (  # noqa: F401 - public names kept importable from here
     MAX_DP_CHAIN,
@@ -47,6 +54,10 @@ class NumpyPrinter(TextPrinter):
         if name is not None:
             return name
         return super()._print(e)
+
+    def _print_CallTimeChoice(self, e):
+        own, dist, own_cost, dist_cost = e.args
+        return f"({self._print(dist)} if {dist_cost} < 0.8 * ({own_cost}) else {self._print(own)})"
 
     def use(self, helper: str):
         self.gen.helpers.add(helper)
@@ -146,15 +157,19 @@ class NumpyPrinter(TextPrinter):
             return items[0][0]
         if len(items) == 2:
             return f"{self.wrap(items[0][0])} @ {self.wrap(items[1][0])}"
-        shapes = [SimpleNamespace(shape=shape) for _, shape, _ in items]
-        _, tree = self.gen.cost.chain_order(shapes)
+        shapes = [shape for _, shape, _ in items]
+        trees = chain_candidates(shapes, self.gen.cost)
 
         def emit(t):
             if isinstance(t, int):
                 return self.wrap(items[t][0])
             return f"({emit(t[0])} @ {emit(t[1])})"
 
-        out = emit(tree)
+        if len(trees) > 1:  # the order depends on the sizes: chosen at call time
+            texts = [emit(t)[1:-1] for t in trees]
+            costs = [poly_text(tree_cost(chain_dims(shapes), t)) for t in trees]
+            return f"({choice_text(texts, costs)})"
+        out = emit(trees[0])
         return out[1:-1] if out.startswith("(") and out.endswith(")") else out
 
     @staticmethod
@@ -485,11 +500,15 @@ def _shared_nodes(exprs) -> set:
     visited: set = set()
     for e in exprs:
         count[e] = count.get(e, 0)
+    inside: set = set()  # below a call-time choice: computed only if its branch is taken
     while stack:
         x = stack.pop()
         if x in visited:
             continue
         visited.add(x)
+        if type(x) is CallTimeChoice:
+            inside.update(n for c in x.children for n in E.walk(c))
+            continue
         for c in x.children:
             count[c] = count.get(c, 0) + 1
             if c not in visited:
@@ -498,7 +517,7 @@ def _shared_nodes(exprs) -> set:
     for node, k in count.items():
         if _trivial(node):
             continue
-        if type(node) is E.Named or k > 1:
+        if type(node) is E.Named or k > 1 or node in inside:
             out.add(node)
     return out
 
