@@ -231,16 +231,23 @@ class NumpyPrinter(TextPrinter):
 
     def _print_Sum(self, e):
         a = e.args[0]
-        if type(a) is E.Power and a.args[1] == E.Const(2) and self.gen.temps.get(a) is None:
+        if _is_square(a) and self.gen.temps.get(a) is None and not E.is_scalar_shape(a.shape):
             x = self._print(a.args[0])
-            sub = "ij,ij->" if E.is_matrix_shape(a.shape) else "i,i->"
-            return f'np.einsum("{sub}", {x}, {x})'  # no temporary for the squares
-        if type(a) is E.Mul and len(a.array_factors) == 2 and not a.scalar_factors:
+            if not E.is_matrix_shape(a.shape):
+                return f"{self.wrap(x)} @ {self.wrap(x)}"  # one BLAS dot, no temporary
+            return f'np.einsum("ij,ij->", {x}, {x})'  # no temporary for the squares
+        if (
+            type(a) is E.Mul
+            and len(a.array_factors) == 2
+            and not a.scalar_factors
+            and not E.is_scalar_shape(a.shape)
+        ):
             x, y = a.args
             if not any(type(f) is E.Power and type(f.args[1]) is E.Const and f.args[1].value < 0
                        for f in (x, y)):  # fmt: skip
-                sub = "ij,ij->" if E.is_matrix_shape(a.shape) else "i,i->"
-                return f'np.einsum("{sub}", {self._print(x)}, {self._print(y)})'
+                if not E.is_matrix_shape(a.shape):
+                    return f"{self.wrap(self._print(x))} @ {self.wrap(self._print(y))}"
+                return f'np.einsum("ij,ij->", {self._print(x)}, {self._print(y)})'
         return f"np.sum({self._print(a)})"
 
     def _spd_factor(self, a: E.Expr) -> str | None:
@@ -513,6 +520,10 @@ def _shared_nodes(exprs) -> set:
             count[c] = count.get(c, 0) + 1
             if c not in visited:
                 stack.append(c)
+        if type(x) is E.Sum and _is_square(x.args[0]) and not x.args[0].is_scalar:
+            # printed as a product with itself
+            base = x.args[0].args[0]
+            count[base] = count.get(base, 0) + 1
     out = set()
     for node, k in count.items():
         if _trivial(node):
@@ -520,6 +531,10 @@ def _shared_nodes(exprs) -> set:
         if type(node) is E.Named or k > 1 or node in inside:
             out.add(node)
     return out
+
+
+def _is_square(e: E.Expr) -> bool:
+    return type(e) is E.Power and e.args[1] == E.Const(2)
 
 
 def _trivial(node) -> bool:
