@@ -363,7 +363,7 @@ class Derivation:
         return True
 
     def _cost(self) -> C.CostModel:
-        return C.CostModel(C.guess_sizes(self.expr, self.size_hints))
+        return C.CostModel(C.guess_sizes(self.expr, self.size_hints), hinted=self.size_hints)
 
     def _specs(self) -> list:
         tgt_shape = self.expr.shape
@@ -448,11 +448,9 @@ class Derivation:
                     "_jac",
                     loop=(
                         f"    _n_in, _n_out = {n_in}, {n_out}\n"
-                        "    _jac = np.empty((_n_out, _n_in), dtype=np.result_type(float, "
-                        + (gen.required[0] if gen.required else "0.0")
-                        + "))\n"
+                        "    _jac = np.empty((_n_out, _n_in), dtype=_dims.dtype)\n"
                         "    for _k in range(_n_in):\n"
-                        "        _e = np.zeros(_n_in)\n"
+                        "        _e = np.zeros(_n_in, dtype=_dims.dtype)\n"
                         "        _e[_k] = 1.0\n"
                         f'        _col = _gw_functions["jvp_{v}"]({reshape_in}, {call_args})\n'
                         '        _jac[:, _k] = np.reshape(_col, -1, order="F")'
@@ -484,9 +482,9 @@ class Derivation:
                         "_hess",
                         loop=(
                             f"    _n_in = {n_in}\n"
-                            "    _hess = np.empty((_n_in, _n_in))\n"
+                            "    _hess = np.empty((_n_in, _n_in), dtype=_dims.dtype)\n"
                             "    for _k in range(_n_in):\n"
-                            "        _e = np.zeros(_n_in)\n"
+                            "        _e = np.zeros(_n_in, dtype=_dims.dtype)\n"
                             "        _e[_k] = 1.0\n"
                             f'        _col = _gw_functions["hvp_{v}"]({reshape_in}, {call_args})\n'
                             '        _hess[:, _k] = np.reshape(_col, -1, order="F")'
