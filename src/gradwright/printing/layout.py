@@ -192,8 +192,8 @@ def _is_formula(piece: str) -> bool:
 def rule_segments(words: str) -> list[tuple[str, str]]:
     """A rule's name as ("text", words) and ("math", LaTeX) pieces, in order.
 
-    >>> rule_segments("rearrange under the trace: tr(A B) = tr(B A)")
-    [('text', 'rearrange under the trace: '), ('math', '\\\\operatorname{tr}(A B) = \\\\operatorname{tr}(B A)')]
+    >>> rule_segments("cyclic: tr(A B) = tr(B A)")
+    [('text', 'cyclic: '), ('math', '\\\\operatorname{tr}(A B) = \\\\operatorname{tr}(B A)')]
     """
     out: list[tuple[str, str]] = []
     for n, part in enumerate(words.split("; ")):
