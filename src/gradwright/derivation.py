@@ -18,6 +18,8 @@ from .sampling import default_sizes, needs_positive, sample_inputs
 from .simplify import simplify
 
 MAX_STEPS = 40
+#: the widest line of a printed step, in ems, before it breaks at an operator
+LINE_BUDGET = 36.0
 #: Hessian-vector products are generated only for gradients up to this size (written out)
 MAX_HESSIAN_GRADIENT = 2_000
 
@@ -296,12 +298,16 @@ class Derivation:
 
     def latex(self) -> str:
         """The derivation as one aligned environment, rule names beside each line."""
+        from .printing.layout import broken_lines, rule_math
+
         lines = []
         prev_lhs = None
         for step in self.steps[1:]:
             lhs = step.lhs_latex if step.lhs_latex != prev_lhs else ""
-            rule = rf" && \text{{{_latex_text(step.rule)}}}" if step.rule else ""
-            lines.append(f"{lhs} &= {step.latex()}{rule}")
+            rule = f" && {rule_math(step.rule)}" if step.rule else ""
+            first, *rest = broken_lines(step.expr, LINE_BUDGET)
+            lines.append(f"{lhs} &= {first}{rule}")
+            lines.extend(rf"&\qquad {more}" for more in rest)
             prev_lhs = step.lhs_latex
         return "\\begin{aligned}\n" + " \\\\\n".join(lines) + "\n\\end{aligned}"
 
@@ -314,9 +320,13 @@ class Derivation:
 
     def result_latex(self) -> str:
         lines = []
+        from .printing.layout import broken_lines
+
         for step in self.steps:
             if step.kind in ("gradient", "jacobian"):
-                lines.append(f"{step.lhs_latex} &= {step.latex()}")
+                first, *rest = broken_lines(step.expr, LINE_BUDGET)
+                lines.append(f"{step.lhs_latex} &= {first}")
+                lines.extend(rf"&\qquad {more}" for more in rest)
         return "\\begin{aligned}\n" + " \\\\\n".join(lines) + "\n\\end{aligned}"
 
     def to_latex(self) -> str:
@@ -631,13 +641,6 @@ def _partial(target: str, var: str) -> str:
 
 def _name_latex(name: str) -> str:
     return symbol_latex(name)
-
-
-def _latex_text(words: str) -> str:
-    out = words.replace("\\", "")
-    for a, b in (("ᵀ", "^T"), ("⊗", " kron "), ("_", r"\_"), ("&", r"\&"), ("%", r"\%")):
-        out = out.replace(a, b)
-    return out
 
 
 def _plain_lhs(step: Step, target: str) -> str:

@@ -6,7 +6,7 @@ import re
 
 from .. import expr as E
 from . import precedence as P
-from .base import Printer, is_small_fraction, join_terms, number_text, split_numerator
+from .base import Printer, fraction_parts, join_terms, number_text, split_numerator
 
 #: between the factors of a product, so that `days S` or `dS S` never read as one word
 THIN = r"\,"
@@ -104,8 +104,9 @@ class LatexPrinter(Printer):
         v = e.value
         if v < 0:
             return "-" + self._print(E.Const(-v))
-        if is_small_fraction(v):
-            return rf"\frac{{{v.numerator}}}{{{v.denominator}}}"
+        parts = fraction_parts(v)
+        if parts is not None:
+            return rf"\frac{{{latex_number(parts[0])}}}{{{parts[1]}}}"
         return latex_number(number_text(v))
 
     def _print_Identity(self, e):
@@ -150,10 +151,11 @@ class LatexPrinter(Printer):
         arrs = [f for f in num if not f.is_scalar]
         top: list[str] = []  # scalar factors above the fraction bar
         bottom = [self.paren(d, P.PRODUCT + 1) for d in scalars_den]
-        if is_small_fraction(coef):  # N/2 reads as \frac{N}{2}, never 0.5 N
-            if coef.numerator != 1:
-                top.append(str(coef.numerator))
-            bottom.insert(0, str(coef.denominator))
+        parts = fraction_parts(coef) if coef > 0 else None
+        if parts is not None:  # N/2 reads as \frac{N}{2}, never 0.5 N
+            if parts[0] != "1":
+                top.append(latex_number(parts[0]))
+            bottom.insert(0, str(parts[1]))
         elif coef != 1:
             top.append(latex_number(number_text(coef)))
         for f in scal:
