@@ -665,6 +665,32 @@ class Derivation:
         return standard_errors(self, arrays)
 
 
+def _api_boundary(method):
+    """No internal error type reaches the user: a `ShapeError` or a broken internal invariant
+    raised while deriving becomes a `NotSupportedError` that says what was being done."""
+
+    @functools.wraps(method)
+    def wrapper(self, *args, **kwargs):
+        try:
+            return method(self, *args, **kwargs)
+        except (ShapeError, AssertionError) as err:
+            what = method.__name__.replace("_", " ")
+            raise NotSupportedError(f"not supported yet: {what} for this block ({err})") from None
+
+    return wrapper
+
+
+for _name in (
+    "differential", "gradient", "jacobian", "latex", "text_steps", "result_latex", "to_latex",
+    "source", "function", "gradient_function", "value_and_gradient_function", "jvp_function",
+    "vjp_function", "jacobian_function", "hvp_function", "hessian_function", "stationary_point",
+    "objective", "second_derivative", "values", "standard_errors",
+):  # fmt: skip
+    setattr(Derivation, _name, _api_boundary(getattr(Derivation, _name)))
+Derivation.steps = functools.cached_property(_api_boundary(Derivation.steps.func))
+Derivation.steps.__set_name__(Derivation, "steps")
+
+
 # ---------------------------------------------------------------------------------------------
 
 
