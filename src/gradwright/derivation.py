@@ -12,6 +12,7 @@ from . import expr as E
 from .calculus import adjoint, differential, expand_once, has_pending, kronecker_form
 from .errors import FormulaError, NotSupportedError, ShapeError
 from .language import Block
+from .matrix_functions import NODES as _MATRIX_NODES
 from .printing import latex, symbol_latex, text
 from .printing import numpy_code as C
 from .sampling import default_sizes, needs_positive, sample_inputs
@@ -359,6 +360,8 @@ class Derivation:
             if t in (E.LogDet, E.Norm) or (t is E.Func and node.name == "softplus"):
                 return False
             if t in (E.Solve, E.Inverse) and E.is_spd(node.args[0]):
+                return False
+            if t in _MATRIX_NODES:  # eigh, cholesky and SciPy's solvers: no complex step
                 return False
         return True
 
