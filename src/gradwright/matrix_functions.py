@@ -142,6 +142,9 @@ class SpectralFrechet(Expr):
         _same_square(s, e, f"the derivative of {name}")
         return s.shape
 
+    def known_symmetric(self) -> bool:
+        return is_symmetric(self.args[1]) and is_symmetric(self.args[2])
+
 
 class ExpmFrechet(Expr):
     """The Fréchet derivative of expm at a square A in the direction E; args (A, E)."""

@@ -423,3 +423,42 @@ def test_text_round_trip_and_latex(formula):
 def test_import_stays_free_of_scipy():
     code = "import sys, gradwright; sys.exit('scipy' in sys.modules)"
     assert subprocess.run([sys.executable, "-c", code], check=False).returncode == 0
+
+
+# --- stationary points that solve a Sylvester or Lyapunov equation -------------------------------
+
+
+def test_stationary_point_of_a_two_sided_smoothing_is_a_sylvester_solve():
+    """A store x week demand table Y smoothed along store similarities Ls and week similarities
+    Lw: f = |X - Y|² + tr(Xᵀ Ls X) + tr(X Lw Xᵀ). Setting the gradient 2(X - Y) + 2 Ls X + 2 X Lw
+    to zero gives (I + Ls) X + X Lw = Y, solved here by scipy.linalg.solve_sylvester."""
+    import scipy.linalg
+
+    block = (
+        "Y: (s, w)\nLs: (s, s) spd\nLw: (w, w) spd\nX: (s, w)\n"
+        "f = sum((X - Y)**2) + trace(X.T @ Ls @ X) + trace(X @ Lw @ X.T)"
+    )
+    d = derive(block, wrt=["X"])
+    point = d.stationary_point("X")
+    assert "solve_sylvester" in point.text()
+    rng = np.random.default_rng(11)
+    arrays = {"Y": rng.standard_normal((5, 3)), "Ls": _spd(rng, 5), "Lw": _spd(rng, 3)}
+    x = point.function()(**arrays)
+    want = scipy.linalg.solve_sylvester(np.eye(5) + arrays["Ls"], arrays["Lw"], arrays["Y"])
+    assert_close(x, want, 1e-10)
+    assert np.max(np.abs(d.gradient_function("X")(X=x, **arrays))) < 1e-10
+
+
+def test_stationary_point_over_symmetric_matrices_is_a_lyapunov_solve():
+    """f = tr(X A X) - tr(Q X) over symmetric X: the symmetric part of the gradient vanishes
+    where M X + X Mᵀ = Q with M = (A + Aᵀ)/2 (scipy.linalg.solve_continuous_lyapunov)."""
+    import scipy.linalg
+
+    d = derive("A: (n, n)\nQ: (n, n) spd\nX: (n, n) symmetric\nf = trace(X @ A @ X) - trace(Q @ X)",
+               wrt=["X"])  # fmt: skip
+    point = d.stationary_point("X")
+    rng = np.random.default_rng(12)
+    a, q = rng.standard_normal((4, 4)), _spd(rng, 4)
+    x = point.function()(A=a, Q=q)
+    assert_close(x, scipy.linalg.solve_continuous_lyapunov(0.5 * (a + a.T), q), 1e-10)
+    assert np.max(np.abs(d.gradient_function("X")(X=x, A=a, Q=q))) < 1e-10

@@ -125,7 +125,7 @@ def _matrix_function(x, d):
     if E.is_zero(da):
         return E.zero_like(x.shape)
     if E.is_symmetric(a):
-        return M.SpectralFrechet(name, a, da)
+        return spectral_frechet(name, a, da)
     if name == "expm":
         return M.ExpmFrechet(a, da)
     if name == "sqrtm":
@@ -146,13 +146,42 @@ def _expm_frechet(x, d):
     return _linear_in_last(x, d, "expm", M.ExpmFrechet)
 
 
+def _identity_multiple(g: E.Expr):
+    """c for g = c I (c a scalar expression), else None."""
+    if type(g) is E.Identity:
+        return E.ONE
+    if type(g) is E.Mul and len(g.array_factors) == 1 and type(g.array_factors[0]) is E.Identity:
+        return E.mul(*g.scalar_factors)
+    return None
+
+
+def _derivative_at(name: str, a: E.Expr, x: E.Expr) -> E.Expr:
+    """f'(A) for f(A) = x: L_f(A, c I) = c f'(A), since I commutes with A."""
+    if name == "expm":
+        return x
+    if name == "logm":
+        return E.inverse(a)
+    return E.mul(E.Const(E.Fraction(1, 2)), E.inverse(x))
+
+
+def spectral_frechet(name: str, s: E.Expr, e: E.Expr) -> E.Expr:
+    """L_f(S, E) by Daleckii–Krein, written as c f'(S) when E = c I (gradients of tr f(S))."""
+    c = _identity_multiple(e)
+    if c is not None:
+        return E.mul(c, _derivative_at(name, s, M.MatrixFunction(name, s)))
+    coef, rest = E.split_coef(e)
+    if rest == s:  # E commutes with S: L_f(S, c S) = c S f'(S)
+        return E.mul(E.Const(coef), E.matmul(s, _derivative_at(name, s, M.MatrixFunction(name, s))))
+    return M.SpectralFrechet(name, s, e)
+
+
 @adjoint_rule(M.SpectralFrechet)
 def _adj_spectral_frechet(node, g):
     # f^[1](λ) is symmetric and U orthogonal, so the map is self-adjoint
     name, s, e = node.args
     if s.has_differential:
         _nonlinear(node)
-    return [(e, M.SpectralFrechet(name, s, g))]
+    return [(e, spectral_frechet(name, s, g))]
 
 
 @adjoint_rule(M.ExpmFrechet)
@@ -161,6 +190,9 @@ def _adj_expm_frechet(node, g):
     a, e = node.args
     if a.has_differential:
         _nonlinear(node)
+    c = _identity_multiple(g)
+    if c is not None:
+        return [(e, E.mul(c, M.MatrixFunction("expm", E.transpose(a))))]
     return [(e, M.ExpmFrechet(E.transpose(a), g))]
 
 

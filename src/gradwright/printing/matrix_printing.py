@@ -136,6 +136,15 @@ def _latex_dlyapunov(self, e):
     return r"\operatorname{dlyap}\left(" + ", ".join(self._print(a) for a in e.args) + r"\right)"
 
 
+# S^{1/2} is a superscript already
+M.MatrixFunction.latex_precedence = property(
+    lambda self: P.POSTFIX if self.args[0] == "sqrtm" else None
+)
+
+# the forms written as products (U ... Uᵀ, L Φ(...)) take parentheses before a superscript
+for _cls in (M.EigvalshVjp, M.CholeskyJvp, M.SpectralFrechet):
+    _cls.latex_precedence = P.PRODUCT
+
 for _cls, _fn in {
     M.Eigvalsh: _latex_eigvalsh,
     M.EigvalshJvp: _latex_eigvalsh_jvp,
