@@ -462,3 +462,46 @@ def test_stationary_point_over_symmetric_matrices_is_a_lyapunov_solve():
     x = point.function()(A=a, Q=q)
     assert_close(x, scipy.linalg.solve_continuous_lyapunov(0.5 * (a + a.T), q), 1e-10)
     assert np.max(np.abs(d.gradient_function("X")(X=x, A=a, Q=q))) < 1e-10
+
+
+# --- the check panel: valid samples and notes near non-differentiable points ---------------------
+
+
+@pytest.mark.parametrize(
+    "block, var",
+    [
+        ("S: (n, n) spd\nw: (n,)\nf = eigvalsh(S) @ w", "S"),
+        ("S: (n, n) symmetric\nC: (n, n)\nf = trace(C @ logm(S))", "S"),
+        ("A: (n, n)\nC: (n, n)\nf = trace(C @ sqrtm(A))", "A"),
+        ("A: (n, n)\nQ: (n, n)\nF = solve_discrete_lyapunov(A, Q)", "A"),
+    ],
+)
+def test_check_panel_draws_valid_inputs_and_passes(block, var):
+    from gradwright.notebook.fdcheck import run_check
+
+    d = derive(block, wrt=[var])
+    arrays = d.sample_inputs(seed=3)
+    a = arrays[var]
+    if "eigvalsh" in block or "logm" in block:
+        w = np.linalg.eigvalsh(a)
+        assert w[0] > 0 and np.min(np.diff(w)) > 0.2 * w[-1] / len(w)
+    if "discrete" in block:
+        assert np.max(np.abs(np.linalg.eigvals(a))) < 1
+    result = run_check(d, [var], arrays)
+    assert result.passed, result.summary()
+    assert not result.notes
+
+
+def test_check_panel_notes_repeated_eigenvalues_and_singular_arguments():
+    from gradwright.notebook.fdcheck import run_check
+
+    d = derive("S: (n, n) spd\nw: (n,)\nf = eigvalsh(S) @ w", wrt=["S"])
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)  # the generated code's own warning
+        result = run_check(d, ["S"], {"S": np.diag([1.0, 1.0, 2.0]), "w": np.ones(3)})
+    assert any("numerically repeated" in note for note in result.notes)
+    d = derive("S: (n, n) symmetric\nf = trace(sqrtm(S))", wrt=["S"])
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)
+        result = run_check(d, ["S"], {"S": np.diag([0.0, 1.0, 2.0])})
+    assert any("singular" in note for note in result.notes)
