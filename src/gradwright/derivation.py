@@ -12,6 +12,8 @@ from . import expr as E
 from .calculus import adjoint, differential, expand_once, has_pending, kronecker_form
 from .errors import FormulaError, NotSupportedError, ShapeError
 from .language import Block
+from .matrix_checks import adjust_samples
+from .matrix_functions import NODES as _MATRIX_NODES
 from .printing import latex, symbol_latex, text
 from .printing import numpy_code as C
 from .sampling import default_sizes, needs_positive, sample_inputs
@@ -358,9 +360,11 @@ class Derivation:
         missing = [d for d in self.block.dims if d not in all_sizes]
         if missing:  # pragma: no cover - default_sizes covers every dim
             raise FormulaError(f"no size for dims {', '.join(missing)}")
-        return sample_inputs(
+        drawn = sample_inputs(
             self.block.declarations, all_sizes, seed, positive=needs_positive(self.expr)
         )
+        # spectral functions and matrix equations need more than the structure words say
+        return adjust_samples(self.expr, self.block.declarations, drawn, seed)
 
     @functools.cached_property
     def supports_complex_step(self) -> bool:
@@ -369,6 +373,8 @@ class Derivation:
             if t in (E.LogDet, E.Norm) or (t is E.Func and node.name == "softplus"):
                 return False
             if t in (E.Solve, E.Inverse) and E.is_spd(node.args[0]):
+                return False
+            if t in _MATRIX_NODES:  # eigh, cholesky and SciPy's solvers: no complex step
                 return False
         return True
 
