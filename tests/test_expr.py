@@ -52,6 +52,9 @@ EXAMPLES = {
     E.Named: E.Named("R", B),
     E.D: E.D(B),
     E.KronContract: E.KronContract(E.Kron(A, B), B, n, n, "left"),
+    E.SizeOf: E.SizeOf(n),
+    E.Pi: E.Pi(),
+    E.Index: E.Index(B, ("slice", 1, 3), ("at", -1)),
 }
 
 #: classes that never occur inside a differential (or are its leaves, handled by the driver),
@@ -61,6 +64,7 @@ NOT_LINEAR = {
     E.Symbol, E.Const, E.Identity, E.Ones, E.Zero, E.Commutation, E.Power, E.Func, E.Det,
     E.LogDet, E.Inverse, E.Norm, E.LogSumExp, E.Softmax, E.MatPow, E.Named, E.D,
 }  # fmt: skip
+NOT_LINEAR |= {E.SizeOf, E.Pi}  # numbers of the language: constants
 #: classes the code generator never prints (pending differentials exist only in displayed steps)
 NOT_CODE = {E.D}
 

@@ -244,6 +244,26 @@ class LatexPrinter(Printer):
     def _print_Softmax(self, e):
         return self.call(r"\operatorname{softmax}", e.args[0])
 
+    def _print_SizeOf(self, e):
+        return dim_latex(e.dim)
+
+    def _print_Pi(self, e):
+        return r"\pi"
+
+    def _print_Index(self, e):
+        a, rows, cols = e.args
+        sels = []
+        for sel in (rows, cols):
+            if sel is None:
+                continue
+            if sel[0] == "at":
+                sels.append(str(sel[1]))
+                continue
+            lo, hi = ("" if b is None else dim_latex(b) for b in sel[1:])
+            sels.append(f"{lo}{{:}}{hi}")
+        sep = r",\,"
+        return rf"{self.paren(a, P.ATOM)}_{{[{sep.join(sels)}]}}"
+
     def _print_KronContract(self, e):
         g, other, _r, _c, side = e.args
         dot = rf"\cdot \otimes {self.paren(other, P.KRON + 1)}"
