@@ -28,6 +28,26 @@ def _commutation(xp, m: int, n: int):
     return xp.asarray(k)
 
 
+def _kron_contract(xp, side: str):
+    """The adjoint of kron(L, B) in L (left) or of kron(A, L) in L (right), from its definition
+    (the (m, n) blocks of G, each (p, q), contracted with the other factor)."""
+
+    def contract(g, other):
+        g2 = g.reshape(g.shape[0], -1) if g.ndim == 2 else g.reshape(-1, 1)
+        o2 = other.reshape(other.shape[0], -1) if other.ndim == 2 else other.reshape(-1, 1)
+        if side == "left":
+            p, q = o2.shape
+            m, n = g2.shape[0] // p, g2.shape[1] // q
+            out = xp.einsum("ikjl,kl->ij", g2.reshape(m, p, n, q), o2)
+        else:
+            m, n = o2.shape
+            p, q = g2.shape[0] // m, g2.shape[1] // n
+            out = xp.einsum("ikjl,ij->kl", g2.reshape(m, p, n, q), o2)
+        return out.reshape(-1) if g.ndim == 1 else out
+
+    return contract
+
+
 def _names(xp, special) -> dict:
     return {
         "exp": xp.exp,
@@ -58,6 +78,10 @@ def _names(xp, special) -> dict:
         "mpow": xp.linalg.matrix_power,
         "commutation": lambda m, n: _commutation(xp, m, n),
         "pi": np.pi,
+        # the printed forms of adjoints (language/calls_printed.py)
+        "unvec": lambda g, r, c: xp.reshape(g, (r, c), order="F"),
+        "kron_contract_left": _kron_contract(xp, "left"),
+        "kron_contract_right": _kron_contract(xp, "right"),
     }
 
 

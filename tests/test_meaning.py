@@ -105,9 +105,7 @@ def _round_trip(block: str, wrt):
 
 
 SCALAR_BLOCKS = [b for b in ALL_BLOCKS if b[0] in {c.id for c in GRADIENT_CASES + NUMPY_CASES}]
-#: printed forms the language cannot read yet (unvec, kron_contract_*)
-NOT_PASTEABLE = {"kron-matrix", "kron-vector", "kron-trace", "vec", "kron-product-dims",
-                 "commutation", "dim-products"}  # fmt: skip
+NOT_PASTEABLE: set = set()
 
 
 @pytest.mark.parametrize(
