@@ -257,6 +257,26 @@ class LatexPrinter(Printer):
     def _print_Softmax(self, e):
         return self.call(r"\operatorname{softmax}", e.args[0])
 
+    def _print_SizeOf(self, e):
+        return dim_latex(e.dim)
+
+    def _print_Pi(self, e):
+        return r"\pi"
+
+    def _print_Index(self, e):
+        a, rows, cols = e.args
+        sels = []
+        for sel in (rows, cols):
+            if sel is None:
+                continue
+            if sel[0] == "at":
+                sels.append(str(sel[1]))
+                continue
+            lo, hi = ("" if b is None else dim_latex(b) for b in sel[1:])
+            sels.append(f"{lo}{{:}}{hi}")
+        sep = r",\,"
+        return rf"{self.paren(a, P.ATOM)}_{{[{sep.join(sels)}]}}"
+
     def _print_KronContract(self, e):
         # G_{[ij]} is the (i, j) block of G, sized like the other factor: the blocks of
         # G paired with B (left factor) or summed with the weights A_ij (right factor)
