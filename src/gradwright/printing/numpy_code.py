@@ -340,6 +340,9 @@ class NumpyPrinter(TextPrinter):
     def _print_MatPow(self, e):
         return f"np.linalg.matrix_power({self._print(e.args[0])}, {e.args[1]})"
 
+    def _print_Pi(self, e):
+        return "np.pi"
+
     def _print_D(self, e):  # pragma: no cover
         raise AssertionError("pending differentials are never printed as code")
 
@@ -542,7 +545,7 @@ def _is_square(e: E.Expr) -> bool:
 
 def _trivial(node) -> bool:
     t = type(node)
-    if t in (E.Symbol, E.Const, E.Differential, E.Identity, E.Ones, E.Zero):
+    if t in (E.Symbol, E.Const, E.Differential, E.Identity, E.Ones, E.Zero, E.SizeOf, E.Pi):
         return True
     if t is E.Transpose and type(node.args[0]) in (E.Symbol, E.Named):
         return True
