@@ -16,6 +16,7 @@ from .matrix_checks import adjust_samples
 from .matrix_functions import NODES as _MATRIX_NODES
 from .printing import latex, symbol_latex, text
 from .printing import numpy_code as C
+from .printing.structure import known_spd
 from .sampling import default_sizes, needs_positive, sample_inputs
 from .simplify import simplify
 
@@ -372,7 +373,7 @@ class Derivation:
             t = type(node)
             if t in (E.LogDet, E.Norm) or (t is E.Func and node.name == "softplus"):
                 return False
-            if t in (E.Solve, E.Inverse) and E.is_spd(node.args[0]):
+            if t in (E.Solve, E.Inverse) and known_spd(node.args[0]):  # Cholesky: not analytic
                 return False
             if t in _MATRIX_NODES:  # eigh, cholesky and SciPy's solvers: no complex step
                 return False
