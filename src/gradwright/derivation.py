@@ -6,11 +6,14 @@ Everything is computed from the one differential value `d(f)`, lazily, and cache
 from __future__ import annotations
 
 import functools
+import inspect
+import itertools
+import linecache
 from dataclasses import dataclass
 
 from . import expr as E
 from .calculus import adjoint, differential, expand_once, has_pending, kronecker_form
-from .errors import FormulaError, NotSupportedError, ShapeError
+from .errors import FormulaError, NotSupportedError, ShapeError, at_the_boundary
 from .language import Block
 from .printing import latex, symbol_latex, text
 from .printing import numpy_code as C
@@ -191,6 +194,7 @@ class Derivation:
         g = self._raw_gradient(var)
         return _project(g, self._vars[var])
 
+    @at_the_boundary
     def gradient(self, var: str | None = None) -> E.Expr:
         """The gradient of a scalar target, shaped like the variable."""
         return self._gradient(self._check_var(var))
@@ -199,6 +203,7 @@ class Derivation:
     def _jacobian(self, var: str) -> E.Expr:
         return simplify(kronecker_form(self._differential((var,)), self._vars[var]))
 
+    @at_the_boundary
     def jacobian(self, var: str | None = None) -> E.Expr:
         """d vec(F) / d vec(X)^T in compact Kronecker form (raises NotSupportedError if none)."""
         return self._jacobian(self._check_var(var))
@@ -343,6 +348,7 @@ class Derivation:
         )
         return f"{table}\n\n\\[\n{self.latex()}\n\\]\n"
 
+    @at_the_boundary
     def to_notebook(self, path) -> None:
         """A standalone notebook with the block, the derivation, the code and a check cell."""
         from .notebook.export import write_notebook  # the face is imported only when asked
@@ -351,6 +357,7 @@ class Derivation:
 
     # --- numbers -------------------------------------------------------------------------------
 
+    @at_the_boundary
     def sample_inputs(self, sizes: dict | None = None, seed: int = 0) -> dict:
         """Random arrays for every declared symbol, honoring shape and structure."""
         all_sizes = default_sizes(self.block.dims)
@@ -505,6 +512,7 @@ class Derivation:
                 )
         return gen, specs
 
+    @at_the_boundary
     def source(self) -> str:
         """The generated Python module (NumPy; SciPy only for spd Cholesky factors)."""
         if self._source is None:
@@ -535,8 +543,12 @@ class Derivation:
     def _namespace(self) -> dict:
         if self._functions is None:
             ns: dict = {"__name__": f"gradwright_generated_{self.target}"}
+            source = self.source()
+            filename = f"<gradwright {self.target} #{next(_GENERATED)}>"
+            # tracebacks and inspect.getsource show the generated lines, not "no source"
+            linecache.cache[filename] = (len(source), None, source.splitlines(True), filename)
             # our own printer wrote this text from the tree; no user text is executed
-            exec(compile(self.source(), f"<gradwright {self.target}>", "exec"), ns)  # noqa: S102
+            exec(compile(source, filename, "exec"), ns)  # noqa: S102
             self._functions = ns
         return self._functions
 
@@ -544,12 +556,14 @@ class Derivation:
         ns = self._namespace()
         if name not in ns:
             raise NotSupportedError(f"not supported yet: {name.replace('_', ' ')} for this target")
-        return ns[name]
+        return _arrays_by_keyword(ns[name])
 
+    @at_the_boundary
     def function(self):
         """f(**arrays) -> the value of the target."""
         return self._fn("value")
 
+    @at_the_boundary
     def gradient_function(self, *vars_: str):
         """g(**arrays) -> the gradient (a tuple in wrt order for several variables)."""
         if not self.is_scalar:
@@ -577,33 +591,40 @@ class Derivation:
         gradients.__name__ = "gradients"
         return gradients
 
+    @at_the_boundary
     def value_and_gradient_function(self):
         """vg(**arrays) -> (value, gradient or tuple of gradients), sharing subexpressions."""
         if not self.is_scalar:
             self.gradient(None)
         return self._fn("value_and_gradient")
 
+    @at_the_boundary
     def jvp_function(self, var: str | None = None):
         return self._fn(f"jvp_{self._check_var(var)}")
 
+    @at_the_boundary
     def vjp_function(self, var: str | None = None):
         return self._fn(f"vjp_{self._check_var(var)}")
 
+    @at_the_boundary
     def jacobian_function(self, var: str | None = None):
         return self._fn(f"jacobian_{self._check_var(var)}")
 
+    @at_the_boundary
     def hvp_function(self, var: str | None = None):
         v = self._check_var(var)
         if not self.is_scalar:
             self.gradient(v)
         return self._fn(f"hvp_{v}")
 
+    @at_the_boundary
     def hessian_function(self, var: str | None = None):
         v = self._check_var(var)
         if not self.is_scalar:
             self.gradient(v)
         return self._fn(f"hessian_{v}")
 
+    @at_the_boundary
     def stationary_point(self, var: str | None = None):
         """The closed-form solution of 'gradient = 0' where one exists."""
         from .calculus.stationary import stationary_point
@@ -613,6 +634,28 @@ class Derivation:
 
 
 # ---------------------------------------------------------------------------------------------
+
+
+_GENERATED = itertools.count(1)
+
+
+def _arrays_by_keyword(fn):
+    """fn with a call that passes arrays by position refused in words that say what to do."""
+    params = inspect.signature(fn).parameters.values()
+    positional = [p.name for p in params if p.kind is not p.KEYWORD_ONLY]
+    keywords = [p.name for p in params if p.kind is p.KEYWORD_ONLY]
+
+    @functools.wraps(fn)
+    def call(*args, **arrays):
+        if len(args) > len(positional):
+            shown = ", ".join([*positional, *(f"{k}=..." for k in keywords)])
+            raise TypeError(
+                f"{fn.__name__}() got {len(args)} arrays by position: pass arrays by "
+                f"keyword: {fn.__name__}({shown})"
+            ) from None
+        return fn(*args, **arrays)
+
+    return call
 
 
 def _words(sym: E.Symbol) -> tuple:
