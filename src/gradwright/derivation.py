@@ -17,6 +17,7 @@ from .errors import FormulaError, NotSupportedError, ShapeError, at_the_boundary
 from .language import Block
 from .printing import latex, symbol_latex, text
 from .printing import numpy_code as C
+from .printing.latex import differential_latex
 from .sampling import default_sizes, needs_positive, sample_inputs
 from .simplify import simplify
 
@@ -218,7 +219,7 @@ class Derivation:
     @functools.cached_property
     def steps(self) -> list[Step]:
         wrt = frozenset(self.variables)
-        lhs = r"\mathrm{d}" + _name_latex(self.target)
+        lhs = differential_latex(_name_latex(self.target))
         steps = [Step("differential", E.D(E.Named(self.target, self.expr)), "", lhs)]
         current = (
             E.D(self.expr)
@@ -285,7 +286,7 @@ class Derivation:
                         "differential",
                         E.add(*parts),
                         "vectorize: vec(A dX B) = (Bᵀ ⊗ A) vec(dX)",
-                        r"\operatorname{vec}(\mathrm{d}" + _name_latex(self.target) + ")",
+                        r"\operatorname{vec}(" + differential_latex(_name_latex(self.target)) + ")",
                     )
                 )
                 for v in self.variables:

@@ -157,7 +157,7 @@ class GradwrightMagics(Magics):
         self.last_derivation = derivation
 
         if not derivation.is_scalar:
-            print(_jacobian_note(derivation, name))
+            print(textwrap.fill(_jacobian_note(derivation, name), width=88))
         print("Injected:")
         for item in plan:
             print(f"  {item.describes}")

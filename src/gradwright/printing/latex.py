@@ -59,6 +59,11 @@ def latex_number(text: str) -> str:
     return power if mantissa == "1" else rf"{mantissa} \times {power}"
 
 
+def differential_latex(name: str) -> str:
+    """d X, with a thin space before a multi-letter name (d days, not "ddays")."""
+    return r"\mathrm{d}" + (THIN if name.startswith(r"\mathrm") else "") + name
+
+
 def dim_latex(d) -> str:
     return r" \cdot ".join(str(d).split("*"))
 
@@ -92,12 +97,12 @@ class LatexPrinter(Printer):
         return symbol_latex(e.name)
 
     def _print_Differential(self, e):
-        return r"\mathrm{d}" + symbol_latex(e.symbol.name)
+        return differential_latex(symbol_latex(e.symbol.name))
 
     def _print_D(self, e):
         inner = e.args[0]
         if type(inner) in (E.Symbol, E.Named):
-            return r"\mathrm{d}" + self._print(inner)
+            return differential_latex(self._print(inner))
         return r"\mathrm{d}\left(" + self._print(inner) + r"\right)"
 
     def _print_Const(self, e):
