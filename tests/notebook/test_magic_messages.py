@@ -47,3 +47,13 @@ def test_injected_functions_called_positionally_say_what_to_do(shell):
     assert "pass arrays by keyword: grad_nll(Z=..., S=..., days=...)" in text
     assert "gradient_S" not in text
     assert grad(Z=Z, S=S, days=3.0).shape == (2, 2)
+
+
+def test_the_gradient_of_an_spd_variable_is_labelled_symmetric():
+    from gradwright import derive
+    from gradwright.notebook.render import shape_rows
+
+    rows = shape_rows(derive(COVARIANCE, wrt="S"))
+    result = next(r for r in rows if r["role"] == "result")
+    assert result["structure"] == "symmetric"  # the gradient is not positive definite
+    assert next(r for r in rows if r["symbol"] == "S")["structure"] == "spd"
