@@ -9,12 +9,15 @@ import functools
 import inspect
 import itertools
 import linecache
+import types
 from dataclasses import dataclass
 
 from . import expr as E
 from .calculus import adjoint, differential, expand_once, has_pending, kronecker_form
-from .errors import FormulaError, NotSupportedError, ShapeError, at_the_boundary
+from .errors import FormulaError, NotSupportedError, ShapeError
 from .language import Block
+from .matrix_checks import adjust_samples
+from .matrix_functions import NODES as _MATRIX_NODES
 from .printing import latex, symbol_latex, text
 from .printing import numpy_code as C
 from .printing.latex import differential_latex
@@ -195,7 +198,6 @@ class Derivation:
         g = self._raw_gradient(var)
         return _project(g, self._vars[var])
 
-    @at_the_boundary
     def gradient(self, var: str | None = None) -> E.Expr:
         """The gradient of a scalar target, shaped like the variable."""
         return self._gradient(self._check_var(var))
@@ -204,7 +206,6 @@ class Derivation:
     def _jacobian(self, var: str) -> E.Expr:
         return simplify(kronecker_form(self._differential((var,)), self._vars[var]))
 
-    @at_the_boundary
     def jacobian(self, var: str | None = None) -> E.Expr:
         """d vec(F) / d vec(X)^T in compact Kronecker form (raises NotSupportedError if none)."""
         return self._jacobian(self._check_var(var))
@@ -349,7 +350,6 @@ class Derivation:
         )
         return f"{table}\n\n\\[\n{self.latex()}\n\\]\n"
 
-    @at_the_boundary
     def to_notebook(self, path) -> None:
         """A standalone notebook with the block, the derivation, the code and a check cell."""
         from .notebook.export import write_notebook  # the face is imported only when asked
@@ -358,7 +358,6 @@ class Derivation:
 
     # --- numbers -------------------------------------------------------------------------------
 
-    @at_the_boundary
     def sample_inputs(self, sizes: dict | None = None, seed: int = 0) -> dict:
         """Random arrays for every declared symbol, honoring shape and structure."""
         all_sizes = default_sizes(self.block.dims)
@@ -366,9 +365,11 @@ class Derivation:
         missing = [d for d in self.block.dims if d not in all_sizes]
         if missing:  # pragma: no cover - default_sizes covers every dim
             raise FormulaError(f"no size for dims {', '.join(missing)}")
-        return sample_inputs(
+        drawn = sample_inputs(
             self.block.declarations, all_sizes, seed, positive=needs_positive(self.expr)
         )
+        # spectral functions and matrix equations need more than the structure words say
+        return adjust_samples(self.expr, self.block.declarations, drawn, seed)
 
     @functools.cached_property
     def supports_complex_step(self) -> bool:
@@ -378,10 +379,12 @@ class Derivation:
                 return False
             if t in (E.Solve, E.Inverse) and E.is_spd(node.args[0]):
                 return False
+            if t in _MATRIX_NODES:  # eigh, cholesky and SciPy's solvers: no complex step
+                return False
         return True
 
     def _cost(self) -> C.CostModel:
-        return C.CostModel(C.guess_sizes(self.expr, self.size_hints))
+        return C.CostModel(C.guess_sizes(self.expr, self.size_hints), hinted=self.size_hints)
 
     def _specs(self) -> list:
         tgt_shape = self.expr.shape
@@ -466,11 +469,9 @@ class Derivation:
                     "_jac",
                     loop=(
                         f"    _n_in, _n_out = {n_in}, {n_out}\n"
-                        "    _jac = np.empty((_n_out, _n_in), dtype=np.result_type(float, "
-                        + (gen.required[0] if gen.required else "0.0")
-                        + "))\n"
+                        "    _jac = np.empty((_n_out, _n_in), dtype=_dims.dtype)\n"
                         "    for _k in range(_n_in):\n"
-                        "        _e = np.zeros(_n_in)\n"
+                        "        _e = np.zeros(_n_in, dtype=_dims.dtype)\n"
                         "        _e[_k] = 1.0\n"
                         f'        _col = _gw_functions["jvp_{v}"]({reshape_in}, {call_args})\n'
                         '        _jac[:, _k] = np.reshape(_col, -1, order="F")'
@@ -502,9 +503,9 @@ class Derivation:
                         "_hess",
                         loop=(
                             f"    _n_in = {n_in}\n"
-                            "    _hess = np.empty((_n_in, _n_in))\n"
+                            "    _hess = np.empty((_n_in, _n_in), dtype=_dims.dtype)\n"
                             "    for _k in range(_n_in):\n"
-                            "        _e = np.zeros(_n_in)\n"
+                            "        _e = np.zeros(_n_in, dtype=_dims.dtype)\n"
                             "        _e[_k] = 1.0\n"
                             f'        _col = _gw_functions["hvp_{v}"]({reshape_in}, {call_args})\n'
                             '        _hess[:, _k] = np.reshape(_col, -1, order="F")'
@@ -513,7 +514,6 @@ class Derivation:
                 )
         return gen, specs
 
-    @at_the_boundary
     def source(self) -> str:
         """The generated Python module (NumPy; SciPy only for spd Cholesky factors)."""
         if self._source is None:
@@ -559,12 +559,10 @@ class Derivation:
             raise NotSupportedError(f"not supported yet: {name.replace('_', ' ')} for this target")
         return _arrays_by_keyword(ns[name])
 
-    @at_the_boundary
     def function(self):
         """f(**arrays) -> the value of the target."""
         return self._fn("value")
 
-    @at_the_boundary
     def gradient_function(self, *vars_: str):
         """g(**arrays) -> the gradient (a tuple in wrt order for several variables)."""
         if not self.is_scalar:
@@ -592,46 +590,131 @@ class Derivation:
         gradients.__name__ = "gradients"
         return gradients
 
-    @at_the_boundary
     def value_and_gradient_function(self):
         """vg(**arrays) -> (value, gradient or tuple of gradients), sharing subexpressions."""
         if not self.is_scalar:
             self.gradient(None)
         return self._fn("value_and_gradient")
 
-    @at_the_boundary
     def jvp_function(self, var: str | None = None):
         return self._fn(f"jvp_{self._check_var(var)}")
 
-    @at_the_boundary
     def vjp_function(self, var: str | None = None):
         return self._fn(f"vjp_{self._check_var(var)}")
 
-    @at_the_boundary
     def jacobian_function(self, var: str | None = None):
         return self._fn(f"jacobian_{self._check_var(var)}")
 
-    @at_the_boundary
-    def hvp_function(self, var: str | None = None):
-        v = self._check_var(var)
+    def hvp_function(self, *vars_: str, var: str | None = None):
+        """hvp(V, **arrays): one variable as today (V shaped like it); with no variable named
+        and several in the derivation, or several named, V and the result are packed vectors
+        (the layout of `objective()`), cross blocks included."""
+        if var is None and (len(vars_) > 1 or (not vars_ and len(self.variables) > 1)):
+            from .fitting import packed_hvp_function
+
+            return packed_hvp_function(self, vars_ or self.variables)
+        v = self._check_var(var if var is not None else (vars_[0] if vars_ else None))
         if not self.is_scalar:
             self.gradient(v)
         return self._fn(f"hvp_{v}")
 
-    @at_the_boundary
-    def hessian_function(self, var: str | None = None):
-        v = self._check_var(var)
+    def hessian_function(self, *vars_: str, var: str | None = None):
+        """h(**arrays): the dense Hessian over column-major vec X for one variable; with no
+        variable named and several in the derivation, or several named, one matrix over the
+        packed vector (the layout of `objective()`), cross blocks included."""
+        if var is None and (len(vars_) > 1 or (not vars_ and len(self.variables) > 1)):
+            from .fitting import packed_hessian_function
+
+            return packed_hessian_function(self, vars_ or self.variables)
+        v = self._check_var(var if var is not None else (vars_[0] if vars_ else None))
         if not self.is_scalar:
             self.gradient(v)
         return self._fn(f"hessian_{v}")
 
-    @at_the_boundary
     def stationary_point(self, var: str | None = None):
         """The closed-form solution of 'gradient = 0' where one exists."""
         from .calculus.stationary import stationary_point
 
         v = self._check_var(var)
         return stationary_point(self, v)
+
+    # --- fitting (the machinery lives in fitting.py and calculus/hessian.py) --------------------
+
+    def _block_hvp(self):
+        if "_block_hvp_fn" not in self.__dict__:
+            from .calculus.hessian import block_hvp_function
+
+            if not self.is_scalar:
+                self.gradient(self.variables[0])
+            self._block_hvp_fn = block_hvp_function(self)
+        return self._block_hvp_fn
+
+    def objective(self, *, args=(), **constants):
+        """The optimizer objective over the packed variables: `obj(flat, *args)` returns
+        `(value, packed gradient)`; `obj.hess`, `obj.hessp`, `obj.pack`, `obj.unpack`.
+        Constants are given here by name, or named in `args` and passed positionally after
+        the vector (as `scipy.optimize.minimize(obj, x0, args=(X, y), jac=True)` does)."""
+        from .fitting import Objective
+
+        return Objective(self, args, constants)
+
+    def second_derivative(self, first: str, second: str):
+        """The mixed second derivative of a scalar target in `first` and `second`:
+        d(∂f/∂first) along d(second), and its Kronecker form when one exists (`.latex()`)."""
+        from .calculus.hessian import mixed_derivative
+
+        first, second = self._check_var(first), self._check_var(second)
+        if not self.is_scalar:
+            self.gradient(first)
+        return mixed_derivative(self, first, second)
+
+    def values(self, **arrays) -> dict:
+        """{definition: value} for every definition of the block and the target, sharing work."""
+        if "_values_fn" not in self.__dict__:
+            from .fitting import values_function
+
+            self._values_fn = values_function(self)
+        return self._values_fn(**arrays)
+
+    def standard_errors(self, **arrays) -> dict:
+        """For a negative log-likelihood target at its minimum: {variable: standard errors
+        shaped like the variable}, the square roots of the diagonal of the inverse block
+        Hessian over the packed variables. Raises FormulaError if the Hessian is not positive
+        definite there."""
+        from .fitting import standard_errors
+
+        if not self.is_scalar:
+            self.gradient(self.variables[0])
+        return standard_errors(self, arrays)
+
+
+def _api_boundary(method):
+    """No internal error type reaches the user: a `ShapeError` or a broken internal invariant
+    raised while deriving becomes a `NotSupportedError` that says what was being done."""
+
+    @functools.wraps(method)
+    def wrapper(self, *args, **kwargs):
+        try:
+            return method(self, *args, **kwargs)
+        except FormulaError as err:  # the user's message without gradwright's frames behind it
+            raise err.with_traceback(None) from None
+        except (ShapeError, AssertionError) as err:
+            what = method.__name__.replace("_", " ")
+            raise NotSupportedError(f"not supported yet: {what} for this block ({err})") from None
+
+    return wrapper
+
+
+for _name in (
+    "differential", "gradient", "jacobian", "latex", "text_steps", "result_latex", "to_latex",
+    "source", "function", "gradient_function", "value_and_gradient_function", "jvp_function",
+    "vjp_function", "jacobian_function", "hvp_function", "hessian_function", "stationary_point",
+    "objective", "second_derivative", "values", "standard_errors", "sample_inputs",
+    "to_notebook",
+):  # fmt: skip
+    setattr(Derivation, _name, _api_boundary(getattr(Derivation, _name)))
+Derivation.steps = functools.cached_property(_api_boundary(Derivation.steps.func))
+Derivation.steps.__set_name__(Derivation, "steps")
 
 
 # ---------------------------------------------------------------------------------------------
@@ -646,7 +729,6 @@ def _arrays_by_keyword(fn):
     positional = [p.name for p in params if p.kind is not p.KEYWORD_ONLY]
     keywords = [p.name for p in params if p.kind is p.KEYWORD_ONLY]
 
-    @functools.wraps(fn)
     def call(*args, **arrays):
         if len(args) > len(positional):
             shown = ", ".join([*positional, *(f"{k}=..." for k in keywords)])
@@ -656,7 +738,12 @@ def _arrays_by_keyword(fn):
             ) from None
         return fn(*args, **arrays)
 
-    return call
+    # the wrapper lives in the generated module's globals, like the function it stands for
+    # (callers read state such as the last chosen order from `g.__globals__`)
+    wrapped = types.FunctionType(
+        call.__code__, fn.__globals__, fn.__name__, call.__defaults__, call.__closure__
+    )
+    return functools.update_wrapper(wrapped, fn)
 
 
 def _words(sym: E.Symbol) -> tuple:

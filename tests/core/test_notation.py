@@ -78,7 +78,7 @@ def test_constants_keep_their_digits():
     assert "2.756815599614018" in d.latex() and "27568155996140181" not in d.latex()
     assert "27568155996140181" not in d.text_steps()
     half = parse_block("N: ()\nx: (n,)\nf = N/2 * sum(x)").expr
-    assert latex(half) == r"\frac{N\,\operatorname{sum}(x)}{2}"
+    assert latex(half) == r"\frac{N}{2}\,\operatorname{sum}(x)"
     assert "0.5" not in latex(half)
 
 

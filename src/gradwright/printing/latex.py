@@ -59,6 +59,13 @@ def latex_number(text: str) -> str:
     return power if mantissa == "1" else rf"{mantissa} \times {power}"
 
 
+def _reads_as_number(e: E.Expr) -> bool:
+    """A dim's size, pi, tr(I) or sum(1): written in front of the other factors."""
+    if type(e).__name__ in ("SizeOf", "Pi"):
+        return True
+    return type(e) in (E.Trace, E.Sum) and type(e.args[0]) in (E.Identity, E.Ones)
+
+
 def differential_latex(name: str) -> str:
     """d X, with a thin space before a multi-letter name (d days, not "ddays")."""
     return r"\mathrm{d}" + (THIN if name.startswith(r"\mathrm") else "") + name
@@ -163,8 +170,12 @@ class LatexPrinter(Printer):
             bottom.insert(0, str(parts[1]))
         elif coef != 1:
             top.append(latex_number(number_text(coef)))
+        scal.sort(key=lambda f: 0 if _reads_as_number(f) else 1)  # n log det S, not log det S n
+        after: list[str] = []  # \frac{n}{2} tr(...): only numbers and names over a plain divisor
         for f in scal:
-            top.append(self.paren(f, P.PRODUCT + 1 if type(f) is not E.MatMul else P.PRODUCT))
+            text = self.paren(f, P.PRODUCT + 1 if type(f) is not E.MatMul else P.PRODUCT)
+            simple = _reads_as_number(f) or type(f) in (E.Symbol, E.Named)
+            (top if simple or scalars_den else after).append(text)
         had = []
         if arrs or arrays_den:
             level = P.PRODUCT + 1 if len(arrs) + len(arrays_den) > 1 else P.PRODUCT
@@ -172,10 +183,11 @@ class LatexPrinter(Printer):
             for d in arrays_den:
                 had.append(self.paren(d, P.POSTFIX + 1) + r"^{\circ -1}")
         hadamard = r" \circ ".join(had)
+        rest = after + ([hadamard] if hadamard else [])
         if bottom:
             frac = rf"\frac{{{THIN.join(top) or '1'}}}{{{THIN.join(bottom)}}}"
-            return f"{frac}{THIN}{hadamard}" if hadamard else frac
-        return THIN.join(top + ([hadamard] if hadamard else [])) or "1"
+            return THIN.join([frac, *rest])
+        return THIN.join(top + rest) or "1"
 
     def _print_MatMul(self, e):
         return THIN.join(self.paren(f, P.PRODUCT + 1) for f in e.args)
@@ -261,6 +273,26 @@ class LatexPrinter(Printer):
 
     def _print_Softmax(self, e):
         return self.call(r"\operatorname{softmax}", e.args[0])
+
+    def _print_SizeOf(self, e):
+        return dim_latex(e.dim)
+
+    def _print_Pi(self, e):
+        return r"\pi"
+
+    def _print_Index(self, e):
+        a, rows, cols = e.args
+        sels = []
+        for sel in (rows, cols):
+            if sel is None:
+                continue
+            if sel[0] == "at":
+                sels.append(str(sel[1]))
+                continue
+            lo, hi = ("" if b is None else dim_latex(b) for b in sel[1:])
+            sels.append(f"{lo}{{:}}{hi}")
+        sep = r",\,"
+        return rf"{self.paren(a, P.ATOM)}_{{[{sep.join(sels)}]}}"
 
     def _print_KronContract(self, e):
         # G_{[ij]} is the (i, j) block of G, sized like the other factor: the blocks of

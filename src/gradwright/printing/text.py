@@ -193,6 +193,27 @@ class TextPrinter(Printer):
         g, other, r, c, side = e.args
         return f"kron_contract_{side}({self._print(g)}, {self._print(other)})"
 
+    def _print_SizeOf(self, e):
+        return self.dim(e.dim)
+
+    def _print_Pi(self, e):
+        return "pi"
+
+    def _print_Index(self, e):
+        a, rows, cols = e.args
+        sels = [self.selector(s) for s in (rows, cols) if s is not None]
+        if E.is_matrix_shape(a.shape) and sels[-1] == ":":
+            sels.pop()  # X[i] is X[i, :]
+        return f"{self.paren(a, P.ATOM)}[{', '.join(sels)}]"
+
+    def selector(self, sel) -> str:
+        if sel[0] == "at":
+            return str(sel[1])
+        start, stop = (
+            "" if b is None else self.dim(b) if isinstance(b, E.Dim) else str(b) for b in sel[1:]
+        )
+        return f"{start}:{stop}"
+
 
 def text(e: E.Expr) -> str:
     """Formula-language text of an expression.
