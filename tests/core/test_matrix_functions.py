@@ -353,7 +353,6 @@ def test_entropy_gradient_closed_form():
     assert_close(d.gradient_function("R")(R=r), -((u * np.log(w)) @ u.T + np.eye(3)), 1e-12)
 
 
-@pytest.mark.xfail(reason="needs indexing (eigvalsh(S)[-k:])", raises=FormulaError, strict=True)
 def test_top_k_eigenvalues():
     d = derive("S: (n, n) spd\nf = sum(eigvalsh(S)[-2:])", wrt=["S"])
     rng = np.random.default_rng(9)
