@@ -158,6 +158,18 @@ class ExpmFrechet(Expr):
         return a.shape
 
 
+class LogmFrechet(Expr):
+    """The Fréchet derivative of the principal logm at a square A along E; args (A, E)."""
+
+    __slots__ = ()
+
+    def _infer_shape(self):
+        a, e = self.args
+        _need_square(a, "logm")
+        _same_square(a, e, "the derivative of logm")
+        return a.shape
+
+
 # --- matrix equations ---------------------------------------------------------------------------
 
 
@@ -226,7 +238,8 @@ class SolveDiscreteLyapunov(Expr):
 
 NODES = (
     Eigvalsh, EigvalshJvp, EigvalshVjp, Cholesky, CholeskyJvp, CholeskyVjp, MatrixFunction,
-    SpectralFrechet, ExpmFrechet, SolveSylvester, SolveContinuousLyapunov, SolveDiscreteLyapunov,
+    SpectralFrechet, ExpmFrechet, LogmFrechet, SolveSylvester, SolveContinuousLyapunov,
+    SolveDiscreteLyapunov,
 )  # fmt: skip
 
 __all__ = [c.__name__ for c in NODES] + ["MATRIX_FUNCTIONS", "NODES"]

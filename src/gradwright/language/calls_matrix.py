@@ -8,7 +8,6 @@ from __future__ import annotations
 
 from .. import expr as E
 from .. import matrix_functions as M
-from ..errors import NotSupportedError
 from .registry import register
 
 
@@ -58,13 +57,6 @@ def _sqrtm(reader, node, args, keywords):
 def _logm(reader, node, args, keywords):
     (a,) = args
     _square(reader, node, a, "logm")
-    if not E.is_symmetric(a):
-        reader.fail_node(
-            "not supported yet: logm of a matrix not known to be symmetric (its derivative is "
-            "implemented for symmetric positive definite arguments; declare it `spd`)",
-            node.args[0],
-            NotSupportedError,
-        )
     return M.MatrixFunction("logm", a)
 
 
