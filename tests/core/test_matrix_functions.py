@@ -530,3 +530,35 @@ def test_check_panel_notes_repeated_eigenvalues_and_singular_arguments():
         warnings.simplefilter("ignore", RuntimeWarning)
         result = run_check(d, ["S"], {"S": np.diag([0.0, 1.0, 2.0])})
     assert any("singular" in note for note in result.notes)
+
+
+@pytest.mark.parametrize(
+    "block, var",
+    [
+        ("A: (n, n)\nB: (k, k)\nQ: (n, k)\nF = solve_sylvester(A, B, Q)", "Q"),
+        ("A: (n, n)\nB: (k, k)\nQ: (n, k)\nF = solve_sylvester(A, B, Q)", "B"),
+        ("A: (n, n)\nQ: (n, n)\nF = solve_continuous_lyapunov(A, Q)", "A"),
+        ("A: (n, n)\nQ: (n, n)\nF = solve_discrete_lyapunov(A / 4, Q)", "A"),
+    ],
+)
+def test_kronecker_form_of_matrix_equations(block, var):
+    """vec(A X + X B) = (I ⊗ A + Bᵀ ⊗ I) vec X (Henderson and Searle, 1981): the displayed
+    Jacobian equals the dense one from JVPs and JAX's Jacobian."""
+    from gradwright.evaluate import evaluate
+
+    sizes = {"n": 3, "k": 2}
+    d = derive(block, wrt=[var])
+    arrays = _arrays(d, 3, seed=17)
+    arrays = {k: (v if np.shape(v) != (3, 3) or k != "B" else v[:2, :2]) for k, v in arrays.items()}
+    if "Q" in arrays and "B" in arrays:
+        arrays["Q"] = arrays["Q"][:, :2]
+    dense = d.jacobian_function()(**arrays)
+    assert_close(evaluate(d.jacobian(), arrays, dims=sizes), dense, 1e-10)
+    ref = jax_reference(block, sizes)
+
+    def along(x):
+        return jnp.ravel(ref(**dict(arrays, **{var: x})), order="F")
+
+    want = jax.jacobian(along)(jnp.asarray(arrays[var]))  # reference library: JAX
+    want = np.asarray(want).reshape(dense.shape[0], -1, order="F")
+    assert_close(dense, want, 1e-9)
