@@ -35,6 +35,7 @@ __all__ = [
     "jax_reference",
     "UnreadableBlock",
     "jax_vjp",
+    "jax_packed",
     "jnp",
     "jax",
     "over_shapes",
@@ -445,6 +446,40 @@ def jax_reference(block_text: str, sizes: dict):
         return env[defs[-1][0]]
 
     return ref
+
+
+# --- packed parameter vectors (fitting) ---------------------------------------------------------
+
+
+def jax_packed(ref, arrays: dict, variables, shapes: dict):
+    """JAX's value, gradient and Hessian of `ref` over the variables packed end to end, each
+    column-major (reference library: JAX). Returns (flat, value, gradient, Hessian)."""
+    consts = _as_jax({k: v for k, v in arrays.items() if k not in variables})
+    sizes = [int(np.prod(shapes[v])) for v in variables]
+
+    def unpacked(flat):
+        out, start = {}, 0
+        for v, size in zip(variables, sizes):
+            piece = flat[start : start + size]
+            out[v] = (
+                piece.reshape(shapes[v][::-1]).T
+                if len(shapes[v]) == 2
+                else (piece.reshape(shapes[v]))
+            )
+            start += size
+        return out
+
+    def f(flat):
+        return ref(**consts, **unpacked(flat))
+
+    flat = np.concatenate([np.ravel(np.asarray(arrays[v], float), order="F") for v in variables])
+    x = jnp.asarray(flat)
+    return (
+        flat,
+        float(f(x)),
+        np.asarray(jax.grad(f)(x)),
+        np.asarray(jax.hessian(f)(x)),
+    )
 
 
 # --- references for spectral functions, factorizations and matrix equations (issue 9) -----------

@@ -53,6 +53,9 @@ EXAMPLES = {
     E.Named: E.Named("R", B),
     E.D: E.D(B),
     E.KronContract: E.KronContract(E.Kron(A, B), B, n, n, "left"),
+    E.SizeOf: E.SizeOf(n),
+    E.Pi: E.Pi(),
+    E.Index: E.Index(B, ("slice", 1, 3), ("at", -1)),
 }
 
 # the spectral, factorization and matrix-equation family (gradwright.matrix_functions)
@@ -83,6 +86,7 @@ NOT_LINEAR = {
     E.LogDet, E.Inverse, E.Norm, E.LogSumExp, E.Softmax, E.MatPow, E.Named, E.D,
     M.Eigvalsh, M.Cholesky, M.MatrixFunction,
 }  # fmt: skip
+NOT_LINEAR |= {E.SizeOf, E.Pi}  # numbers of the language: constants
 #: classes the code generator never prints (pending differentials exist only in displayed steps)
 NOT_CODE = {E.D}
 

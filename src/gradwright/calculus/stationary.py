@@ -91,7 +91,13 @@ def _split(term: E.Expr, x: E.Symbol):
     if len(idx) != 1 or fs[idx[0]] != x:
         return None
     i = idx[0]
-    return E.mul(*scalars) if scalars else E.ONE, fs[:i], fs[i + 1 :]
+    before, after = fs[:i], fs[i + 1 :]
+    # a chain like (1ᵀ1) x: the factors beside x multiply to a scalar, a coefficient
+    if before and E.matmul(*before).is_scalar:
+        scalars, before = [*scalars, E.matmul(*before)], ()
+    if after and E.matmul(*after).is_scalar:
+        scalars, after = [*scalars, E.matmul(*after)], ()
+    return E.mul(*scalars) if scalars else E.ONE, before, after
 
 
 def _solve_affine(h: E.Expr, x: E.Symbol) -> E.Expr:
@@ -188,7 +194,27 @@ def stationary_point(derivation, var: str) -> StationaryPoint:
                 f"{var} G {var} = 0 is affine, and {var} is invertible",
                 derivation,
             )
+        inverse = _through_inverse(g, x, derivation)
+        if inverse is not None:
+            return inverse
     raise NotSupportedError(
         f"not supported yet: a closed form for the stationary point in {var} (the gradient is "
         "not affine in it); use the gradient with an optimizer"
+    )
+
+
+def _through_inverse(g: E.Expr, x: E.Symbol, derivation):
+    """X enters the gradient only through inv(X), affinely (the Gaussian precision case):
+    solve for Y = inv(X), then X = inv(Y)."""
+    name = "_inverse_of_" + x.name
+    y = E.Symbol(name, x.shape, frozenset(x.structure & {"symmetric", "square"}))
+    h = simplify(expand(E.substitute(g, {E.inverse(x): y})))
+    if x.name in h.symbols or name not in h.symbols or not _is_affine(h, name):
+        return None
+    y_star = _solve_affine(h, y)
+    return StationaryPoint(
+        x.name,
+        simplify(E.inverse(y_star)),
+        f"the gradient is affine in inv({x.name}); solved for inv({x.name}) and inverted",
+        derivation,
     )
