@@ -378,13 +378,29 @@ def test_entropy_gradient_closed_form():
     assert_close(d.gradient_function("R")(R=r), -((u * np.log(w)) @ u.T + np.eye(3)), 1e-12)
 
 
-@pytest.mark.xfail(reason="needs indexing (eigvalsh(S)[-k:])", raises=FormulaError, strict=True)
 def test_top_k_eigenvalues():
+    """Ky Fan: the sum of the k largest eigenvalues has the gradient U_k U_kᵀ (the projector on
+    their eigenvectors) where λ_k > λ_(k+1) (K. Fan, 1949, from memory)."""
     d = derive("S: (n, n) spd\nf = sum(eigvalsh(S)[-2:])", wrt=["S"])
     rng = np.random.default_rng(9)
     s = _spd(rng, 4)
     _, u = np.linalg.eigh(s)
     assert_close(d.gradient_function("S")(S=s), u[:, -2:] @ u[:, -2:].T, 1e-12)
+    top = jax.grad(lambda x: jnp.sum(jnp.linalg.eigvalsh(x)[-2:]))  # reference library: JAX
+    want = _sym(np.asarray(top(jnp.asarray(s))))
+    assert_close(d.gradient_function("S")(S=s), want, 1e-12)
+
+
+def test_largest_eigenvalue():
+    from gradwright.language.parser import FUNCTIONS
+
+    if "max" not in FUNCTIONS:
+        pytest.skip("needs the reductions max/min of the NumPy-semantics work")
+    d = derive("S: (n, n) spd\nf = max(eigvalsh(S))", wrt=["S"])
+    rng = np.random.default_rng(10)
+    s = _spd(rng, 4)
+    _, u = np.linalg.eigh(s)
+    assert_close(d.gradient_function("S")(S=s), np.outer(u[:, -1], u[:, -1]), 1e-12)
 
 
 # --- warnings, refusals, printers ---------------------------------------------------------------
