@@ -615,3 +615,19 @@ def test_displayed_steps_evaluate_equal_and_read_off_the_gradient(case):
         elif step.kind == "gradient":
             got = evaluate(step.expr, arrays, dims={"n": 3})
             assert_close(got, d.gradient_function(step.var)(**arrays), 1e-9, what=step.var)
+
+
+@pytest.mark.parametrize(
+    "case", SCALAR_CASES + USER_CASES, ids=lambda c: c[0].splitlines()[-1][:40] + ":" + c[1][0]
+)
+def test_printed_gradients_read_back(case):
+    """The text of every gradient is in the language and reads back to the same expression."""
+    block, wrt = case
+    wrt = [wrt] if isinstance(wrt, str) else wrt
+    d = derive(block, wrt=wrt)
+    lines = block.rstrip("\n").split("\n")
+    head = "\n".join(lines[:-1]) + "\n"
+    for v in wrt:
+        g = d.gradient(v)
+        again = parse_block(head + f"G = {text(g)}").expr
+        assert again == g, (text(g), text(again))
