@@ -325,6 +325,15 @@ def test_lqr_cost_gradient_equals_the_closed_form():
     # one adjoint Lyapunov solve, no Kronecker system in the generated code
     src = d.source()
     assert "np.kron" not in src and "_gw_solve_continuous_lyapunov" in src
+    # second derivatives go through the same implicit differentiation: HVP against JAX
+    ref = jax_reference(block, {"n": n, "m": m})
+    v = rng.standard_normal((m, n))
+
+    def cost(k):
+        return ref(**dict(arrays, K=k))
+
+    _, want = jax.jvp(jax.grad(cost), (jnp.asarray(k),), (jnp.asarray(v),))  # reference: JAX
+    assert_close(d.hvp_function("K")(v, **arrays), np.asarray(want), 1e-9)
 
 
 # --- the hidden cases a user would try ---------------------------------------------------------
