@@ -78,15 +78,38 @@ def _route(derivation, name: str, np_fn, args: tuple, kwargs: dict):
     libraries = {_library(v) for v in (*args, *kwargs.values())} - {None, "numpy"}
     if not libraries:
         return np_fn(*args, **kwargs)
-    if name.startswith(NUMPY_ONLY_PREFIXES):
-        shown = ", ".join(sorted(libraries))
-        what = "dense Jacobian" if name.startswith("jacobian_") else "dense Hessian"
-        raise TypeError(
-            f"the {what} takes NumPy arrays only (got {shown} arrays): use the "
-            f"{'jvp/vjp' if what == 'dense Jacobian' else 'hvp'} functions, which take them"
-        )
     large = chunked_dims(derivation, kwargs) if "dask" in libraries else ()
-    return _array_api_namespace(derivation, large)[name](*args, **kwargs)
+    ns = _array_api_namespace(derivation, large)
+    if name.startswith(NUMPY_ONLY_PREFIXES):
+        return _dense(ns, name, args, kwargs)
+    return ns[name](*args, **kwargs)
+
+
+def _dense(ns: dict, name: str, args: tuple, kwargs: dict):
+    """The dense Jacobian or Hessian over column-major vec, one JVP or HVP per column, in the
+    arguments' library (the NumPy module fills an array in place, which JAX cannot)."""
+    import array_api_compat
+
+    kind, var = name.split("_", 1)
+    product = ns[("jvp_" if kind == "jacobian" else "hvp_") + var]
+    if args or var not in kwargs:
+        return product(*args, **kwargs)  # its own error about the arguments
+    x = kwargs[var]
+    shape = tuple(int(s) for s in getattr(x, "shape", np.shape(x)))
+    dtype = str(getattr(x, "dtype", "float64")).rsplit(".", 1)[-1]
+    if dtype not in ("float32", "float64"):
+        dtype = "float64"
+    n_in = int(np.prod(shape))
+    columns = []
+    for k in range(n_in):
+        e = np.zeros(n_in, dtype=dtype)
+        e[k] = 1.0
+        col = product(e.reshape(shape, order="F"), **kwargs)
+        xp = array_api_compat.array_namespace(col)
+        if col.ndim > 1:
+            col = xp.permute_dims(col, tuple(range(col.ndim))[::-1])
+        columns.append(xp.reshape(col, (-1,)))
+    return xp.stack(columns, axis=1)
 
 
 def _dispatch_template(np_fn, route, plain):

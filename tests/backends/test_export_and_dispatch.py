@@ -135,10 +135,21 @@ def test_arrays_of_two_libraries_are_refused():
         d.gradient_function()(X=torch.ones((3, 2)), w=jnp.ones(2))
 
 
-def test_dense_jacobian_names_the_products_that_take_tensors():
-    d = derive("A: (m, n)\nX: (n, p)\nF = A @ X", "X")
-    with pytest.raises(TypeError, match="dense Jacobian takes NumPy arrays only.*jvp/vjp"):
-        d.jacobian_function()(A=torch.ones((2, 3)), X=torch.ones((3, 2)))
+@pytest.mark.parametrize("library", ["torch", "jax"])
+def test_dense_jacobian_and_hessian_on_tensors(library):
+    convert = torch.asarray if library == "torch" else jnp.asarray
+    d = derive("A: (m, n)\nX: (n, p)\nF = tanh(A @ X)", "X")
+    rng = np.random.default_rng(0)
+    arrays = {"A": rng.standard_normal((2, 3)), "X": rng.standard_normal((3, 2))}
+    want = d.jacobian_function()(**arrays)
+    got = d.jacobian_function()(**{k: convert(v) for k, v in arrays.items()})
+    assert type(got).__module__.split(".")[0] in ("torch", "jax", "jaxlib")
+    assert rel_err(np.asarray(got), want) <= 1e-12
+    h = derive(GLS, wrt="S")
+    point = _point()
+    want = h.hessian_function()(**point)
+    got = h.hessian_function()(**{k: convert(v) for k, v in point.items()})
+    assert got.shape == want.shape and rel_err(np.asarray(got), want) <= 1e-12
 
 
 def test_an_operation_a_library_lacks_is_named():
