@@ -27,6 +27,15 @@ LIBRARIES = {
     "torch": (lambda a, dt: torch.asarray(np.asarray(a, dtype=dt)), torch.Tensor),
     "jax": (lambda a, dt: jnp.asarray(np.asarray(a, dtype=dt)), jax.Array),
 }
+try:  # the standard's reference namespace: only what the standard has (no einsum, kron, diag)
+    import array_api_strict
+
+    LIBRARIES["array-api-strict"] = (
+        lambda a, dt: array_api_strict.asarray(np.asarray(a, dtype=dt)),
+        array_api_strict._array_object.Array,
+    )
+except ImportError:  # pragma: no cover - a test dependency
+    pass
 
 
 @functools.cache

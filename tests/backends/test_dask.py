@@ -166,3 +166,32 @@ def test_lbfgs_fit_on_parquet_matches_statsmodels(client, tmp_path):
     got = fit(wls.value_and_gradient_function(), X=X, y=h, v=wt)
     want = sm.WLS(frame["height"].to_numpy(), Xn, weights=frame["weight"].to_numpy()).fit().params
     np.testing.assert_allclose(got, want, rtol=1e-6, atol=1e-8)
+
+
+def test_float32_on_dask_stays_float32():
+    d = derive(GLS, wrt=["B", "S"])
+    gen = np.random.default_rng(2)
+    A = gen.standard_normal((K, K))
+    eager = {
+        "X": gen.standard_normal((400, 5)),
+        "Y": gen.standard_normal((400, K)),
+        "B": gen.standard_normal((5, K)),
+        "S": A @ A.T + K * np.eye(K),
+    }
+    lazy = {
+        k: da.from_array(v.astype(np.float32), chunks=(100, -1)) if k in "XY" else np.float32(v)
+        for k, v in eager.items()
+    }
+    lazy["B"], lazy["S"] = da.from_array(lazy["B"]), da.from_array(lazy["S"])
+    value, (gB, gS) = dask.compute(*d.value_and_gradient_function()(**lazy), scheduler="sync")
+    want = d.value_and_gradient_function()(**eager)
+    assert value.dtype == gB.dtype == gS.dtype == np.float32
+    assert rel_err(gB, want[1][0]) <= 1e-5 and rel_err(gS, want[1][1]) <= 1e-5
+
+
+def test_unknown_chunk_sizes_are_named():
+    d = derive(LEAST_SQUARES, wrt="w")
+    X = da.ones((40, 3), chunks=(10, 3))
+    kept = X[X[:, 0] > 0]  # a filter: Dask does not know the row count before computing
+    with pytest.raises(ValueError, match=r"X has an unknown number of rows .*compute_chunk_sizes"):
+        d.gradient_function()(X=kept, w=np.ones(3), y=kept[:, 0])

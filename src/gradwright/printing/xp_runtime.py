@@ -355,6 +355,12 @@ class _GwXp:
         if subscripts == "ij,ji->i":
             a, b = operands
             return ns.sum(a * b.T, axis=1)
+        if subscripts == "ikjl,kl->ij":
+            g, b = operands
+            return ns.sum(g * b[None, :, None, :], axis=(1, 3))
+        if subscripts == "ikjl,ij->kl":
+            g, b = operands
+            return ns.sum(g * b[:, None, :, None], axis=(0, 2))
         self.unavailable(f"einsum({subscripts!r})")
 
     def trace(self, a):
