@@ -82,9 +82,9 @@ class LineBreaker:
     def lines(self, e: E.Expr) -> list[str]:
         text = self.printer.doprint(e)
         if (
-            latex_width(text) <= self.budget
+            len(text) > self.MAX_CHARACTERS
             or text.startswith(r"\text{(too large")
-            or len(text) > self.MAX_CHARACTERS
+            or latex_width(text) <= self.budget
         ):
             return [text]
         return self._lines(e, text)
