@@ -672,3 +672,17 @@ def test_printed_gradients_read_back(case):
         g = d.gradient(v)
         again = parse_block(head + f"G = {text(g)}").expr
         assert again == g, (text(g), text(again))
+
+
+def test_generated_code_refuses_inputs_outside_the_domain():
+    """A clear error instead of NumPy's silent one-triangle reading or SciPy's complex result."""
+    bad = np.array([[2.0, 1.0], [0.0, 2.0]])
+    with pytest.raises(ValueError, match="S is not symmetric"):
+        derive("S: (2, 2) symmetric\nf = sum(eigvalsh(S))", wrt=["S"]).function()(S=bad)
+    indefinite = np.diag([1.0, -1.0])
+    with pytest.raises(np.linalg.LinAlgError, match="not positive definite"):
+        derive("S: (2, 2) symmetric\nF = cholesky(S)", wrt=["S"]).function()(S=indefinite)
+    with pytest.raises(ValueError, match="not positive definite"):
+        derive("S: (2, 2) symmetric\nF = sqrtm(S)", wrt=["S"]).function()(S=indefinite)
+    with pytest.raises(ValueError, match="not a real matrix"):
+        derive("A: (2, 2)\nF = logm(A)", wrt=["A"]).function()(A=np.diag([1.0, -2.0]) + 0.1)
