@@ -65,6 +65,8 @@ EXAMPLES.update(
         M.Eigvalsh: M.Eigvalsh(S),
         M.EigvalshJvp: M.EigvalshJvp(S, E.Differential(S)),
         M.EigvalshVjp: M.EigvalshVjp(S, x),
+        M.EigvalshVjpJvp: M.EigvalshVjpJvp(S, x, E.Differential(S)),
+        M.TrilHalf: M.TrilHalf(A),
         M.Cholesky: M.Cholesky(S),
         M.CholeskyJvp: M.CholeskyJvp(M.Cholesky(S), E.Differential(S)),
         M.CholeskyVjp: M.CholeskyVjp(M.Cholesky(S), A),
