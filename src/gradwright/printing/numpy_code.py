@@ -56,6 +56,11 @@ class NumpyPrinter(TextPrinter):
             return name
         return super()._print(e)
 
+    def _print_LeastSquares(self, e):
+        a, b = e.args
+        self.use("_gw_lstsq")
+        return f"_gw_lstsq({self._print(a)}, {self._print(b)}, {self.label(a)})"
+
     def _print_CallTimeChoice(self, e):
         own, dist, own_cost, dist_cost = e.args
         return f"({self._print(dist)} if {dist_cost} < 0.8 * ({own_cost}) else {self._print(own)})"
