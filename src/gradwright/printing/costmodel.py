@@ -161,6 +161,10 @@ def lower(e: E.Expr, cost: CostModel, free=frozenset()) -> E.Expr:
     """inv(A) @ B -> solve(A, B); distribute products over sums where the cost model says so;
     a solve with a sum distributed where every term becomes a solve computed anyway or one
     with a single right-hand side."""
+    if free and len(free) <= 400:  # what is computed anyway is free transposed too
+        free = free | {
+            E.transpose(x) for x in free if type(x) in (E.Add, E.MatMul, E.Named, E.Func)
+        }
     first = _lower(e, cost, free, frozenset())
     solves = frozenset(n for n in E.walk(first) if type(n) is E.Solve)
     solves |= frozenset(n for x in free for n in E.walk(x) if type(n) is E.Solve)

@@ -21,7 +21,7 @@ _GW_COMPLEX_STEP = []
 #: entrywise and reducing functions of the standard that the generated code calls by name
 _GW_STANDARD = frozenset(
     "exp log sqrt sin cos tanh sinh cosh abs sign real imag conj isfinite log1p expm1 square "
-    "maximum minimum where mean min prod sum max matmul".split()
+    "maximum minimum where mean min prod sum max matmul broadcast_to".split()
 )
 
 
