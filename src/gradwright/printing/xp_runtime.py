@@ -146,6 +146,7 @@ def _gw_check(specs):
     dtype = ns.result_type(*floats) if floats else ns.float64
     xp = _GwXp(library, ns, native, dtype, device)
     dims, owner, out, products = _GwDims(), {}, [], []
+    dims.dtype = dtype  # the dtype of constants the code builds (eye, ones, zeros)
     for a, (name, _v, spec) in zip(arrays, specs):
         if _gw_library(a) != library:  # a number or a list of integers
             a = ns.asarray(a, dtype=dtype if a.dtype.kind != "c" else None, **where)
@@ -264,6 +265,8 @@ class _GwXp:
         return None  # PyTorch and Dask have no such module: the operation is not available
 
     def unavailable(self, operation):
+        if operation.startswith("gw_"):  # a NumPy helper of the generated code
+            operation = operation[3:]
         raise NotImplementedError(
             f"{operation} is not available for {self.library} arrays in gradwright's generated "
             "code; pass NumPy arrays for this formula"
@@ -288,10 +291,11 @@ class _GwXp:
 
     # --- construction -----------------------------------------------------------------------
 
-    def _make(self, fn, *args):
+    def _make(self, fn, *args, dtype=None):
+        dtype = self.dtype if dtype is None else dtype
         if self.library == "dask":
-            return fn(*args, dtype=self.dtype)
-        return fn(*args, dtype=self.dtype, device=self.device)
+            return fn(*args, dtype=dtype)
+        return fn(*args, dtype=dtype, device=self.device)
 
     def asarray(self, a, dtype=None):
         if _gw_library(a) == self.library:
@@ -309,14 +313,14 @@ class _GwXp:
     def _arr(self, a):
         return a if _gw_library(a) == self.library else self.asarray(a, dtype=self.dtype)
 
-    def eye(self, n):
-        return self._make(self.ns.eye, n)
+    def eye(self, n, dtype=None):
+        return self._make(self.ns.eye, n, dtype=dtype)
 
-    def ones(self, shape):
-        return self._make(self.ns.ones, shape)
+    def ones(self, shape, dtype=None):
+        return self._make(self.ns.ones, shape, dtype=dtype)
 
-    def zeros(self, shape):
-        return self._make(self.ns.zeros, shape)
+    def zeros(self, shape, dtype=None):
+        return self._make(self.ns.zeros, shape, dtype=dtype)
 
     # --- shapes -------------------------------------------------------------------------------
 
@@ -582,7 +586,10 @@ class _GwXp:
         z = self.ns.exp(x - self.ns.max(x))
         return z / self.ns.sum(z)
 
-    def gw_commutation(self, m, n):
+    def gw_cho_solve(self, factor, b):
+        return self.cho_solve(factor, b)
+
+    def gw_commutation(self, m, n, dtype=None):
         import numpy
 
         k = numpy.zeros((m * n, m * n))
