@@ -589,6 +589,71 @@ class _GwXp:
     def gw_cho_solve(self, factor, b):
         return self.cho_solve(factor, b)
 
+    # --- spectral functions and factorizations of symmetric matrices (PyTorch, JAX, CuPy) ----
+    # the same formulas as the NumPy helpers; expm, sqrtm, logm and the matrix equations have
+    # no counterpart here and are refused by name
+
+    def _no_dask(self, operation):
+        if self.library == "dask":
+            self.unavailable(operation)
+
+    def gw_matrix_function(self, name, *args):
+        self.unavailable(name)
+
+    def gw_spectral_frechet(self, name, *args):
+        self.unavailable(f"the derivative of {name}")
+
+    def gw_symmetric(self, a, label, what):
+        if self.concrete(a) and math.prod(a.shape):
+            ns = self.ns
+            scale = max(1.0, float(ns.max(ns.abs(a))))
+            if float(ns.max(ns.abs(a - a.T))) > 1e-8 * scale:
+                raise ValueError(f"{label} is not symmetric, but {what} needs a symmetric matrix")
+        return a
+
+    def gw_eigh(self, a, label, what):
+        self._no_dask(what)
+        w, u = self.ns.linalg.eigh(self.gw_symmetric(a, label, what))
+        return w, u
+
+    def gw_eigvalsh(self, a, label):
+        self._no_dask("eigvalsh")
+        return self.ns.linalg.eigvalsh(self.gw_symmetric(a, label, "eigvalsh"))
+
+    def gw_eigvalsh_jvp(self, a, e, label):
+        """d eigvalsh(S)[i] = u_i^T dS u_i (Magnus 1985), for simple eigenvalues."""
+        _w, u = self.gw_eigh(a, label, "eigvalsh")
+        return self.ns.sum(u * ((0.5 * (e + e.T)) @ u), axis=0)
+
+    def gw_eigvalsh_vjp(self, a, g, label):
+        """U Diag(g) U^T: the gradient of a function of eigvalsh(S) with weights g."""
+        _w, u = self.gw_eigh(a, label, "eigvalsh")
+        return (u * g) @ u.T
+
+    def gw_cholesky(self, a, label):
+        self._no_dask("cholesky")
+        low = self.cholesky(self.gw_symmetric(a, label, "cholesky"))
+        if self.concrete(low) and not bool(self.ns.all(self.ns.isfinite(low))):
+            raise ValueError(f"{label} is not positive definite: cholesky needs an spd matrix")
+        return low
+
+    def _phi(self, p):
+        """The lower triangle with half the diagonal."""
+        return self.ns.tril(p, k=-1) + 0.5 * self.diag(self.diagonal(p))
+
+    def gw_cholesky_jvp(self, low, e):
+        """dL = L Phi(L^-1 dS L^-T) (Murray 2016); triangular solves as general solves."""
+        es = 0.5 * (e + e.T)
+        p = self.solve(low, self.solve(low, es).T)
+        return low @ self._phi(p)
+
+    def gw_cholesky_vjp(self, low, g):
+        """sym(L^-T Phi(L^T G) L^-1): the reverse mode of the Cholesky factor (Murray 2016)."""
+        p = self._phi(low.T @ g)
+        y = self.solve(low.T, p)
+        m = self.solve(low.T, y.T).T
+        return 0.5 * (m + m.T)
+
     def gw_commutation(self, m, n, dtype=None):
         import numpy
 
