@@ -6,6 +6,10 @@ Everything is computed from the one differential value `d(f)`, lazily, and cache
 from __future__ import annotations
 
 import functools
+import inspect
+import itertools
+import linecache
+import types
 from dataclasses import dataclass
 
 from . import expr as E
@@ -16,6 +20,8 @@ from .matrix_checks import adjust_samples
 from .matrix_functions import NODES as _MATRIX_NODES
 from .printing import latex, symbol_latex, text
 from .printing import numpy_code as C
+from .printing.latex import differential_latex
+from .printing.structure import known_spd
 from .sampling import default_sizes, needs_positive, sample_inputs
 from .simplify import simplify
 
@@ -215,7 +221,7 @@ class Derivation:
     @functools.cached_property
     def steps(self) -> list[Step]:
         wrt = frozenset(self.variables)
-        lhs = r"\mathrm{d}" + _name_latex(self.target)
+        lhs = differential_latex(_name_latex(self.target))
         steps = [Step("differential", E.D(E.Named(self.target, self.expr)), "", lhs)]
         current = (
             E.D(self.expr)
@@ -282,7 +288,7 @@ class Derivation:
                         "differential",
                         E.add(*parts),
                         "vectorize: vec(A dX B) = (Bᵀ ⊗ A) vec(dX)",
-                        r"\operatorname{vec}(\mathrm{d}" + _name_latex(self.target) + ")",
+                        r"\operatorname{vec}(" + differential_latex(_name_latex(self.target)) + ")",
                     )
                 )
                 for v in self.variables:
@@ -372,7 +378,7 @@ class Derivation:
             t = type(node)
             if t in (E.LogDet, E.Norm) or (t is E.Func and node.name == "softplus"):
                 return False
-            if t in (E.Solve, E.Inverse) and E.is_spd(node.args[0]):
+            if t in (E.Solve, E.Inverse) and known_spd(node.args[0]):  # Cholesky: not analytic
                 return False
             if t in _MATRIX_NODES:  # eigh, cholesky and SciPy's solvers: no complex step
                 return False
@@ -554,8 +560,12 @@ class Derivation:
     def _namespace(self) -> dict:
         if self._functions is None:
             ns: dict = {"__name__": f"gradwright_generated_{self.target}"}
+            source = self.source()
+            filename = f"<gradwright {self.target} #{next(_GENERATED)}>"
+            # tracebacks and inspect.getsource show the generated lines, not "no source"
+            linecache.cache[filename] = (len(source), None, source.splitlines(True), filename)
             # our own printer wrote this text from the tree; no user text is executed
-            exec(compile(self.source(), f"<gradwright {self.target}>", "exec"), ns)  # noqa: S102
+            exec(compile(source, filename, "exec"), ns)  # noqa: S102
             self._functions = ns
         return self._functions
 
@@ -565,7 +575,7 @@ class Derivation:
             raise NotSupportedError(f"not supported yet: {name.replace('_', ' ')} for this target")
         from .backends import dispatching  # NumPy arguments go straight to ns[name]
 
-        return dispatching(self, name, ns)
+        return _arrays_by_keyword(dispatching(self, name, ns))
 
     def function(self):
         """f(**arrays) -> the value of the target."""
@@ -704,6 +714,8 @@ def _api_boundary(method):
     def wrapper(self, *args, **kwargs):
         try:
             return method(self, *args, **kwargs)
+        except FormulaError as err:  # the user's message without gradwright's frames behind it
+            raise err.with_traceback(None) from None
         except (ShapeError, AssertionError) as err:
             what = method.__name__.replace("_", " ")
             raise NotSupportedError(f"not supported yet: {what} for this block ({err})") from None
@@ -715,7 +727,8 @@ for _name in (
     "differential", "gradient", "jacobian", "latex", "text_steps", "result_latex", "to_latex",
     "source", "function", "gradient_function", "value_and_gradient_function", "jvp_function",
     "vjp_function", "jacobian_function", "hvp_function", "hessian_function", "stationary_point",
-    "objective", "second_derivative", "values", "standard_errors",
+    "objective", "second_derivative", "values", "standard_errors", "sample_inputs",
+    "to_notebook",
 ):  # fmt: skip
     setattr(Derivation, _name, _api_boundary(getattr(Derivation, _name)))
 Derivation.steps = functools.cached_property(_api_boundary(Derivation.steps.func))
@@ -723,6 +736,32 @@ Derivation.steps.__set_name__(Derivation, "steps")
 
 
 # ---------------------------------------------------------------------------------------------
+
+
+_GENERATED = itertools.count(1)
+
+
+def _arrays_by_keyword(fn):
+    """fn with a call that passes arrays by position refused in words that say what to do."""
+    params = inspect.signature(fn).parameters.values()
+    positional = [p.name for p in params if p.kind is not p.KEYWORD_ONLY]
+    keywords = [p.name for p in params if p.kind is p.KEYWORD_ONLY]
+
+    def call(*args, **arrays):
+        if len(args) > len(positional):
+            shown = ", ".join([*positional, *(f"{k}=..." for k in keywords)])
+            raise TypeError(
+                f"{fn.__name__}() got {len(args)} arrays by position: pass arrays by "
+                f"keyword: {fn.__name__}({shown})"
+            ) from None
+        return fn(*args, **arrays)
+
+    # the wrapper lives in the generated module's globals, like the function it stands for
+    # (callers read state such as the last chosen order from `g.__globals__`)
+    wrapped = types.FunctionType(
+        call.__code__, fn.__globals__, fn.__name__, call.__defaults__, call.__closure__
+    )
+    return functools.update_wrapper(wrapped, fn)
 
 
 def _words(sym: E.Symbol) -> tuple:

@@ -147,7 +147,16 @@ def _appears_as_result(e: E.Expr, name: str) -> bool:
 
 
 def lower(e: E.Expr, cost: CostModel, free=frozenset()) -> E.Expr:
-    """inv(A) @ B -> solve(A, B); distribute products over sums where the cost model says so."""
+    """inv(A) @ B -> solve(A, B); distribute products over sums where the cost model says so;
+    a solve with a sum distributed where every term becomes a solve computed anyway or one
+    with a single right-hand side."""
+    first = _lower(e, cost, free, frozenset())
+    solves = frozenset(n for n in E.walk(first) if type(n) is E.Solve)
+    solves |= frozenset(n for x in free for n in E.walk(x) if type(n) is E.Solve)
+    return _lower(e, cost, free, solves)
+
+
+def _lower(e: E.Expr, cost: CostModel, free, solves) -> E.Expr:
     memo: dict = {}
 
     def go(x: E.Expr) -> E.Expr:
@@ -165,10 +174,37 @@ def lower(e: E.Expr, cost: CostModel, free=frozenset()) -> E.Expr:
                 out = _distribute(out, cost, free, go)
                 if type(out) is E.MatMul:
                     out = _solves(out)
+            out = _thin_solve(out, solves)
         memo[x] = out
         return out
 
     return go(e)
+
+
+def _thin_solve(x: E.Expr, solves=frozenset()) -> E.Expr:
+    """solve(A, v w) = solve(A, v) w for a column v: one right-hand side instead of many; a
+    solve with a sum distributed when each term becomes a solve in `solves` (computed anyway)
+    or one of those thin solves."""
+    if type(x) is E.MatMul and type(x.args[-1]) is E.Solve:
+        last = _thin_solve(x.args[-1], solves)
+        return x if last is x.args[-1] else E.matmul(*x.args[:-1], last)
+    if type(x) is E.Transpose and type(x.args[0]) is E.Solve:
+        inner = _thin_solve(x.args[0], solves)
+        return x if inner is x.args[0] else E.transpose(inner)
+    if type(x) is not E.Solve:
+        return x
+    a, b = x.args
+    if type(b) is E.MatMul and len(b.args) > 1 and E.is_col(b.args[0].shape):
+        return E.matmul(E.Solve(a, b.args[0]), *b.args[1:])
+    if type(b) is E.Mul and len(b.array_factors) == 1:
+        inner = E.Solve(a, b.array_factors[0])
+        thin = _thin_solve(inner)
+        return x if thin is inner else E.mul(*b.scalar_factors, thin)
+    if solves and type(b) is E.Add:
+        terms = [_thin_solve(E.Solve(a, t)) for t in b.args]
+        if all(t in solves or type(t) is not E.Solve for t in terms):
+            return E.add(*terms)
+    return x
 
 
 def _unwrap(f: E.Expr) -> E.Expr:

@@ -202,6 +202,8 @@ _FORMULA_SUBS = (
     (re.compile("⊗"), r"\\otimes "),
     (re.compile("[∘⊙]"), r"\\circ "),
     (re.compile(r"\s*=\s*"), " = "),
+    # juxtaposed factors keep a thin space: A dX B, not "AdXB"
+    (re.compile(r"(?<=[A-Za-z0-9)}])\s+(?=[A-Za-z(\\])(?!\\otimes|\\circ)"), r"\\,"),
 )
 
 
