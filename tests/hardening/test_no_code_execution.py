@@ -103,7 +103,14 @@ MODULE_NAMES = {"np", "warnings", "cmath"}
 GENERATOR_LOCALS = {"_dims", "_direction", "_cotangent"}
 # the parser refuses user names starting with '_', so every such name is the generator's own
 GENERATOR_LOCAL_RE = re.compile(r"^(_[A-Za-z]\w*|grad_\w+)$")
-ALLOWED_BUILTINS = {"range", "float", "type", "AttributeError", "LookupError", "min"}  # min: call-time chain order
+ALLOWED_BUILTINS = {
+    "range",
+    "float",
+    "type",
+    "AttributeError",
+    "LookupError",
+    "min",
+}  # min: call-time chain order
 ARRAY_ATTRIBUTES = {"T", "reshape", "shape", "dtype"}  # shape and dtype: the fast check
 IMPORTS = {
     "import cmath",
