@@ -110,6 +110,7 @@ _RULE_NAMES = {
     "symmetric": "Daleckii–Krein rule U (f^[1](λ) ∘ (Uᵀ dS U)) Uᵀ (Bhatia 1997, ch. V)",
     "expm": "Fréchet derivative of expm (Al-Mohy and Higham 2009)",
     "sqrtm": "square-root rule X dX + dX X = dA (Higham 2008)",
+    "logm": "Fréchet derivative of logm (Higham 2008, ch. 11)",
 }
 
 
@@ -131,9 +132,7 @@ def _matrix_function(x, d):
     if name == "sqrtm":
         # X X = A, so X dX + dX X = dA: a Sylvester equation with both coefficients X
         return M.SolveSylvester(x, x, da)
-    raise NotSupportedError(  # the reader refuses logm of a non-symmetric argument already
-        f"not supported yet: the derivative of {name} of a matrix not known to be symmetric"
-    )
+    return M.LogmFrechet(a, da)
 
 
 @rule(M.SpectralFrechet, "the Daleckii–Krein form is linear in dS")
@@ -194,6 +193,23 @@ def _adj_expm_frechet(node, g):
     if c is not None:
         return [(e, E.mul(c, M.MatrixFunction("expm", E.transpose(a))))]
     return [(e, M.ExpmFrechet(E.transpose(a), g))]
+
+
+@rule(M.LogmFrechet, "the Fréchet derivative is linear in dA")
+def _logm_frechet(x, d):
+    return _linear_in_last(x, d, "logm", M.LogmFrechet)
+
+
+@adjoint_rule(M.LogmFrechet)
+def _adj_logm_frechet(node, g):
+    # the integral form ∫ (t(A - I) + I)⁻¹ E (t(A - I) + I)⁻¹ dt gives L(A, ·)* = L(Aᵀ, ·)
+    a, e = node.args
+    if a.has_differential:
+        _nonlinear(node)
+    c = _identity_multiple(g)
+    if c is not None:
+        return [(e, E.mul(c, E.inverse(E.transpose(a))))]
+    return [(e, M.LogmFrechet(E.transpose(a), g))]
 
 
 # --- matrix equations ---------------------------------------------------------------------------

@@ -27,6 +27,7 @@ _TEXT_NAMES = {
     M.CholeskyJvp: "cholesky_jvp",
     M.CholeskyVjp: "cholesky_vjp",
     M.ExpmFrechet: "expm_frechet",
+    M.LogmFrechet: "logm_frechet",
     M.SolveSylvester: "solve_sylvester",
     M.SolveContinuousLyapunov: "solve_continuous_lyapunov",
     M.SolveDiscreteLyapunov: "solve_discrete_lyapunov",
@@ -124,6 +125,11 @@ def _latex_expm_frechet(self, e):
     return rf"L_{{\exp}}\left({self._print(a)}, {self._print(d)}\right)"
 
 
+def _latex_logm_frechet(self, e):
+    a, d = e.args
+    return rf"L_{{\log}}\left({self._print(a)}, {self._print(d)}\right)"
+
+
 def _latex_sylvester(self, e):
     return r"\operatorname{sylv}\left(" + ", ".join(self._print(a) for a in e.args) + r"\right)"
 
@@ -155,6 +161,7 @@ for _cls, _fn in {
     M.MatrixFunction: _latex_matrix_function,
     M.SpectralFrechet: _latex_spectral_frechet,
     M.ExpmFrechet: _latex_expm_frechet,
+    M.LogmFrechet: _latex_logm_frechet,
     M.SolveSylvester: _latex_sylvester,
     M.SolveContinuousLyapunov: _latex_lyapunov,
     M.SolveDiscreteLyapunov: _latex_dlyapunov,
@@ -199,6 +206,7 @@ for _cls, _method in {
     M.MatrixFunction: _code_matrix_function,
     M.SpectralFrechet: _code_helper("_gw_spectral_frechet", label=True),
     M.ExpmFrechet: _code_helper("_gw_expm_frechet"),
+    M.LogmFrechet: _code_helper("_gw_logm_frechet"),
     M.SolveSylvester: _code_helper("_gw_solve_sylvester"),
     M.SolveContinuousLyapunov: _code_helper("_gw_solve_continuous_lyapunov"),
     M.SolveDiscreteLyapunov: _code_helper("_gw_solve_discrete_lyapunov"),

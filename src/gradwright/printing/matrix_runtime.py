@@ -157,6 +157,18 @@ def _gw_expm_frechet(a, e):
 
     return expm_frechet(a, e, compute_expm=False)
 """,
+    "_gw_logm_frechet": """
+def _gw_logm_frechet(a, e):
+    \"\"\"The Frechet derivative of the principal logm at A along E: the upper-right block of
+    logm([[A, E], [0, A]]) (Higham, Functions of Matrices, 2008, eq. (3.16)).\"\"\"
+    from scipy.linalg import logm
+
+    n = a.shape[0]
+    out = logm(np.block([[a, e], [np.zeros_like(a), a]]))[:n, n:]
+    if np.iscomplexobj(out):
+        out = out.real  # a real A with a real logm has a real derivative
+    return out
+""",
     "_gw_solve_sylvester": """
 def _gw_solve_sylvester(a, b, q):
     from scipy.linalg import solve_sylvester

@@ -29,6 +29,7 @@ from .costmodel import (  # noqa: F401 - public names kept importable from here
     lower,
 )
 from .runtime import FUNC_CODE, HELPERS  # noqa: F401
+from .structure import known_spd
 from .text import TextPrinter
 
 # ---------------------------------------------------------------------------------------------
@@ -251,7 +252,7 @@ class NumpyPrinter(TextPrinter):
         return f"np.sum({self._print(a)})"
 
     def _spd_factor(self, a: E.Expr) -> str | None:
-        if E.is_spd(a) and self.gen.use_cholesky:
+        if known_spd(a) and self.gen.use_cholesky:
             self.use("_gw_cho")
             self.use("_gw_cho_solve")
             return self.gen.cholesky_for(a, self)
@@ -413,7 +414,9 @@ class CodeGen:
             name = f"_chol{len(self.cholesky)}"
             self.cholesky[a] = name
             self.uses_scipy = True
-            self.lines.append(f"    {name} = _gw_cho({printer._print(a)}, {printer.label(a)})")
+            declared = "" if E.is_spd(a) else ", False"
+            factor = f"_gw_cho({printer._print(a)}, {printer.label(a)}{declared})"
+            self.lines.append(f"    {name} = {factor}")
         return name
 
     def signature(self, direction: str | None) -> str:
