@@ -751,7 +751,7 @@ def _arrays_by_keyword(fn):
         if len(args) > len(positional):
             shown = ", ".join([*positional, *(f"{k}=..." for k in keywords)])
             raise TypeError(
-                f"{fn.__name__}() got {len(args)} arrays by position: pass arrays by "
+                f"{fn.__name__}() got {len(args)} positional arguments: pass arrays by "
                 f"keyword: {fn.__name__}({shown})"
             ) from None
         return fn(*args, **arrays)

@@ -31,7 +31,7 @@ def _named(fn, name: str, positional, keywords, doc: str):
         if len(args) > len(positional):  # name the function the user called, and the fix
             shown = ", ".join([*positional, *(f"{k}=..." for k in keywords)])
             raise TypeError(
-                f"{name}() got {len(args)} arrays by position: pass arrays by "
+                f"{name}() got {len(args)} positional arguments: pass arrays by "
                 f"keyword: {name}({shown})"
             )
         return fn(*args, **kwargs)
