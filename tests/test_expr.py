@@ -52,6 +52,11 @@ EXAMPLES = {
     E.Named: E.Named("R", B),
     E.D: E.D(B),
     E.KronContract: E.KronContract(E.Kron(A, B), B, n, n, "left"),
+    # reductions over an axis, softmax over an axis, maximum/minimum (expr_axis.py)
+    E.AxisReduce: E.AxisReduce("logsumexp", B, 1, True),
+    E.TieWeights: E.TieWeights("max", B, 0),
+    E.AxisSoftmax: E.AxisSoftmax("log_softmax", B, 1),
+    E.Extremum: E.Extremum("maximum", B, s),
 }
 
 #: classes that never occur inside a differential (or are its leaves, handled by the driver),
@@ -60,6 +65,7 @@ NOT_LINEAR = {
     E.Differential,
     E.Symbol, E.Const, E.Identity, E.Ones, E.Zero, E.Commutation, E.Power, E.Func, E.Det,
     E.LogDet, E.Inverse, E.Norm, E.LogSumExp, E.Softmax, E.MatPow, E.Named, E.D,
+    E.AxisReduce, E.TieWeights, E.AxisSoftmax, E.Extremum,
 }  # fmt: skip
 #: classes the code generator never prints (pending differentials exist only in displayed steps)
 NOT_CODE = {E.D}

@@ -9,7 +9,9 @@ from __future__ import annotations
 import numpy as np
 
 from . import expr as E
+from .entrywise import EXTRA_ENTRYWISE
 from .errors import FormulaError
+from .evaluate_axis import AxisEvaluator
 
 __all__ = ["evaluate", "to_internal", "to_user"]
 
@@ -66,10 +68,11 @@ FUNCS = {
     "tanh": np.tanh,
     "sigmoid": _sigmoid,
     "softplus": _softplus,
+    **{name: spec.evaluate for name, spec in EXTRA_ENTRYWISE.items()},
 }
 
 
-class _Evaluator:
+class _Evaluator(AxisEvaluator):
     def __init__(self, arrays, differentials, dims):
         self.arrays = arrays
         self.differentials = differentials or {}

@@ -12,6 +12,7 @@ from collections.abc import Iterable
 from dataclasses import dataclass
 from fractions import Fraction
 
+from .entrywise import EXTRA_ENTRYWISE
 from .errors import ShapeError
 
 # ---------------------------------------------------------------------------------------------
@@ -415,7 +416,9 @@ class Power(Expr):
         return self.args[0].shape
 
 
-ELEMENTWISE = ("exp", "log", "sqrt", "sin", "cos", "tanh", "sigmoid", "softplus")
+ELEMENTWISE = ("exp", "log", "sqrt", "sin", "cos", "tanh", "sigmoid", "softplus") + tuple(
+    EXTRA_ENTRYWISE
+)
 
 
 class Func(Expr):
@@ -891,6 +894,9 @@ def matmul(*factors: Expr) -> Expr:
         if reduced and _cancels(reduced[-1], f):
             reduced.pop()
             continue
+        if reduced and type(f) is Ones and type(reduced[-1]) is Ones and f.shape[0] in _UNIT:
+            reduced[-1] = Ones((reduced[-1].shape[0], f.shape[1]))  # 1 1ᵀ of ones is ones
+            continue
         if reduced and type(f) is Solve and reduced[-1] == f.args[0]:
             reduced.pop()
             f = f.args[1]
@@ -902,6 +908,9 @@ def matmul(*factors: Expr) -> Expr:
     else:
         core = MatMul(*reduced)
     return mul(*scalars, core) if scalars else core
+
+
+_UNIT = (None, Dim((), 1))
 
 
 def _cancels(a: Expr, b: Expr) -> bool:
@@ -1224,3 +1233,10 @@ def expanded_size(e: Expr, limit: int) -> int:
         stack.append((x, True))
         stack.extend((c, False) for c in x.children if id(c) not in memo)
     return memo[id(e)]
+
+
+# reductions over an axis, row-wise softmax and maximum/minimum live in their own module; they
+# are built from the constructors above, so they are imported last
+from .expr_axis import AXIS_NODES, AxisReduce, AxisSoftmax, Extremum, TieWeights  # noqa: E402, F401
+
+NODE_CLASSES = NODE_CLASSES + AXIS_NODES

@@ -3,6 +3,7 @@
 `differential(e, wrt)` is linear in the differential leaves; everything else derives from it.
 """
 
+from . import rules_axis  # noqa: F401  (registers the rules of expr_axis nodes)
 from .adjoint import ADJOINTS, adjoint
 from .kronecker import kronecker_form
 from .rules import RULES, differential, expand_once, has_pending, pending

@@ -12,7 +12,9 @@ from dataclasses import dataclass, field
 from types import SimpleNamespace
 
 from .. import expr as E
+from ..entrywise import EXTRA_ENTRYWISE
 from . import precedence as P
+from .axis_printing import AXIS_HELPERS, NumpyAxisMixin
 from .base import split_numerator
 from .text import TextPrinter
 
@@ -205,6 +207,9 @@ def _gw_kron_contract(g, other, rows, cols, side):
     return np.einsum("ikjl,ij->kl", g.reshape(m, rows, n, cols), other)
 """,
 }
+
+HELPERS.update(AXIS_HELPERS)
+HELPERS.update(spec.helper for spec in EXTRA_ENTRYWISE.values() if spec.helper is not None)
 
 FUNC_CODE = {
     "exp": "np.exp",
@@ -422,7 +427,7 @@ def _solves(m: E.MatMul) -> E.Expr:
 # ---------------------------------------------------------------------------------------------
 
 
-class NumpyPrinter(TextPrinter):
+class NumpyPrinter(NumpyAxisMixin, TextPrinter):
     names = {
         "trace": "np.trace", "det": "np.linalg.det", "kron": "np.kron", "sum": "np.sum",
         "norm": "np.linalg.norm", "outer": "np.outer", "eye": "np.eye", "ones": "np.ones",
@@ -575,6 +580,8 @@ class NumpyPrinter(TextPrinter):
         return f"{self.wrap(self._print(a))}**{self.wrap(self._print(k))}"
 
     def _print_Func(self, e):
+        if e.name in EXTRA_ENTRYWISE:
+            return self.extra_func(e)
         code = FUNC_CODE[e.name]
         if e.name == "sigmoid":
             self.use("_gw_sigmoid")
