@@ -67,7 +67,7 @@ SCALAR_CASES = [
      lambda Z, Y: jnp.sum(Y * jax.nn.softmax(Z, axis=1) ** 2), False),
     ("softmax-axis0", "Z: (n, k)\nY: (n, k)\nf = sum(Y * softmax(Z, axis=-2))", "Z",
      lambda Z, Y: jnp.sum(Y * jax.nn.softmax(Z, axis=0)), False),
-    ("softmax-all", "Z: (n, k)\nY: (n, k)\nf = sum(Y * softmax(Z))", "Z",
+    ("softmax-all", "Z: (n, k)\nY: (n, k)\nf = sum(Y * softmax(Z, axis=None))", "Z",
      lambda Z, Y: jnp.sum(Y * jax.nn.softmax(Z, axis=None)), False),
     ("log-softmax-axis1", "Z: (n, k)\nY: (n, k)\nf = -sum(Y * log_softmax(Z, axis=1))", "Z",
      lambda Z, Y: -jnp.sum(Y * jax.nn.log_softmax(Z, axis=1)), False),
@@ -261,3 +261,37 @@ def test_value_is_what_scipy_computes():
     Z = np.random.default_rng(8).standard_normal((3, 4))
     # reference: scipy.special.log_softmax / softmax
     assert_close(d.function()(Z=Z), sp.log_softmax(Z, axis=1) + sp.softmax(Z, axis=0), 1e-13)
+
+
+# constructs that combine a kept axis with broadcasting, which lands with another branch
+BROADCAST_CASES = [
+    ("Z: (n, k)\nY: (n, k)\nf = sum(Y * (Z - logsumexp(Z, axis=1, keepdims=True)))",
+     lambda Z, Y: jnp.sum(Y * (Z - jsp.logsumexp(Z, axis=1, keepdims=True)))),
+    ("Z: (n, k)\nY: (n, k)\nf = sum(Y * exp(Z - max(Z, axis=1, keepdims=True)))",
+     lambda Z, Y: jnp.sum(Y * jnp.exp(Z - jnp.max(Z, axis=1, keepdims=True)))),
+    ("Z: (n, k)\nY: (n, k)\nf = sum(Y * Z / sum(Z**2, axis=0, keepdims=True))",
+     lambda Z, Y: jnp.sum(Y * Z / jnp.sum(Z**2, axis=0, keepdims=True))),
+    ("Z: (n, k)\nY: (n, k)\nb: (k,)\nf = sum(Y * maximum(Z, b))",
+     lambda Z, Y, b: jnp.sum(Y * jnp.maximum(Z, b))),
+]  # fmt: skip
+
+
+@pytest.mark.xfail(reason="needs broadcasting from i8a", strict=False)
+@pytest.mark.parametrize("case", BROADCAST_CASES, ids=lambda c: c[0].split("f = ")[1])
+def test_kept_axes_broadcast_back_as_numpy(case):
+    block, ref = case
+    d = derive(block, wrt=["Z"])
+    arrays = _arrays(d, 9)
+    want = jax.grad(ref)(*arrays.values())  # JAX
+    assert_close(d.gradient_function("Z")(**arrays), np.asarray(want), RTOL)
+
+
+def test_softmax_of_a_matrix_needs_an_axis():
+    """scipy.special.softmax(Z) normalizes every entry, jax.nn.softmax(Z) each row: refused."""
+    with pytest.raises(FormulaError, match="needs axis=") as err:
+        derive("Z: (n, k)\nf = sum(softmax(Z))", wrt=["Z"])
+    assert "^" in str(err.value)
+    d = derive("Z: (n, k)\nF = log_softmax(Z, axis=None)", wrt=["Z"])
+    from gradwright.printing import text
+
+    assert text(d.expr) == "log_softmax(Z, axis=None)"

@@ -118,6 +118,14 @@ def _softmax(kind: str):
             axis = None
             if kind == "softmax":
                 return E.Softmax(a)
+        elif "axis" not in keywords:
+            # scipy.special reads no axis as every entry, jax.nn and torch as the last axis:
+            # the line means different things in NumPy users' libraries, so it is refused
+            reader.fail_node(
+                f"{kind} of a {E.describe(a)} needs axis=: axis=1 for each row, axis=0 for "
+                "each column, axis=None for all entries together",
+                node,
+            )
         return X.AxisSoftmax(kind, a, axis)
 
     return build

@@ -2,7 +2,8 @@
 
 `log(1 + exp(x))` is `softplus(x)`, `log(sum(exp(x)))` is `logsumexp(x)`,
 `log(exp(Z) @ ones(k))` (and `log(sum(exp(Z), axis=1))`) is `logsumexp(Z, axis=1)`, and
-`log(softmax(x))` is `log_softmax(x)`. The values are equal (the same function of the same
+`log(softmax(x))` is `log_softmax(x)`, `log(sigmoid(x))` is `-softplus(-x)` and
+`log(1 - sigmoid(x))` is `-softplus(x)`. The values are equal (the same function of the same
 arrays); the recognized form is max-shifted in the generated value, gradient and HVP, where the
 written one overflows to inf at logits of a few hundred.
 """
@@ -39,6 +40,12 @@ def _log_of(a: E.Expr) -> E.Expr | None:
             x = _exp_arg(rest[0])
             if x is not None:
                 return E.Func("softplus", x)
+    if type(a) is E.Func and a.name == "sigmoid":  # log σ(x) = -softplus(-x)
+        return E.neg(E.Func("softplus", E.neg(a.arg)))
+    if type(a) is E.Add and len(a.args) == 2 and E.ONE in a.args:  # log(1 - σ(x))
+        c, rest = E.split_coef(a.args[1] if a.args[0] == E.ONE else a.args[0])
+        if c == -1 and type(rest) is E.Func and rest.name == "sigmoid":
+            return E.neg(E.Func("softplus", rest.arg))
     if type(a) is E.Sum:
         x = _exp_arg(a.args[0])
         if x is not None and not x.is_scalar:

@@ -36,7 +36,9 @@ class TextAxisMixin:
 
     def _print_AxisSoftmax(self, e):
         kind, a, axis = e.args
-        return f"{kind}({self._print(a)}{_axis_keywords(a, axis)})"
+        # a matrix without axis= is refused (libraries disagree on it): None is written out
+        given = ", axis=None" if axis is None and E.is_matrix_shape(a.shape) else ""
+        return f"{kind}({self._print(a)}{_axis_keywords(a, axis)}{given})"
 
     def _print_Extremum(self, e):
         op, a, b = e.args
