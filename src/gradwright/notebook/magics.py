@@ -187,6 +187,17 @@ class GradwrightMagics(Magics):
         display(panel)
 
 
+def _append_language_help() -> None:
+    """`%%derive?` lists the NumPy constructs of the formula language, one entry each."""
+    from gradwright.language.help_numpy import numpy_constructs_help
+
+    fn = GradwrightMagics.derive
+    fn.__doc__ = (fn.__doc__ or "") + "\n" + numpy_constructs_help() + "\n"
+
+
+_append_language_help()
+
+
 def load_ipython_extension(ipython) -> None:
     """Register gradwright's magics (`%load_ext gradwright`)."""
     ipython.register_magics(GradwrightMagics)
