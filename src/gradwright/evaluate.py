@@ -56,7 +56,8 @@ def _softplus(x):
 
 
 def _sigmoid(x):
-    return 1.0 / (1.0 + np.exp(-x))
+    # the tanh form never overflows (1 / (1 + exp(-x)) does at x = -710)
+    return 0.5 * (1.0 + np.tanh(0.5 * x))
 
 
 FUNCS = {

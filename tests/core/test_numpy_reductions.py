@@ -295,3 +295,56 @@ def test_softmax_of_a_matrix_needs_an_axis():
     from gradwright.printing import text
 
     assert text(d.expr) == "log_softmax(Z, axis=None)"
+
+
+# whole models written the way NumPy users write them (invented scenarios; reference: JAX)
+MODELS = [
+    # a bakery's two-layer demand network with a ReLU hidden layer
+    ("Xb: (n, p)\nW1: (p, h)\nw2: (h,)\ny: (n,)\nH = maximum(Xb @ W1, 0)\n"
+     "loss = mean((H @ w2 - y)**2)", ("W1", "w2"),
+     lambda Xb, W1, w2, y: jnp.mean((jnp.maximum(Xb @ W1, 0) @ w2 - y) ** 2)),
+    # one attention head over a tram timetable's stops
+    ("Q: (n, h)\nK: (n, h)\nV: (n, h)\nA = softmax(Q @ K.T / 2, axis=-1)\n"
+     "out = sum((A @ V)**2)", ("Q", "K", "V"),
+     lambda Q, K, V: jnp.sum((jax.nn.softmax(Q @ K.T / 2, axis=-1) @ V) ** 2)),
+    # ferry ticket classes: multinomial logit without intercepts
+    ("X: (n, p)\nW: (p, h)\nY: (n, h)\nZ = X @ W\n"
+     "nll = sum(logsumexp(Z, axis=1)) - sum(Y * Z)", ("W",),
+     lambda X, W, Y: jnp.sum(jsp.logsumexp(X @ W, axis=1)) - jnp.sum(Y * (X @ W))),
+    # least absolute deviations for a kiln's temperature probes, with a cosh penalty
+    ("X: (n, p)\nb: (p,)\ny: (n,)\nf = sum(abs(y - X @ b)) + sum(cosh(b) - 1)", ("b",),
+     lambda X, b, y: jnp.sum(jnp.abs(y - X @ b)) + jnp.sum(jnp.cosh(b) - 1)),
+    # Student-t log-likelihood of orchard yield residuals, degrees of freedom a variable
+    ("r: (n,)\nnu: ()\nf = sum(gammaln((nu + 1) / 2) - gammaln(nu / 2) - 0.5 * log(nu) "
+     "- (nu + 1) / 2 * log1p(r**2 / nu))", ("nu",),
+     lambda r, nu: jnp.sum(jsp.gammaln((nu + 1) / 2) - jsp.gammaln(nu / 2) - 0.5 * jnp.log(nu)
+                           - (nu + 1) / 2 * jnp.log1p(r**2 / nu))),
+    # worst-case row of a storage rack's load matrix, and its column-wise spread
+    ("L: (n, h)\nf = max(sum(L**2, axis=1)) + sum(max(L, axis=0) - min(L, axis=0))", ("L",),
+     lambda L: jnp.max(jnp.sum(L**2, axis=1)) + jnp.sum(jnp.max(L, axis=0) - jnp.min(L, axis=0))),
+]  # fmt: skip
+
+
+@pytest.mark.parametrize("case", MODELS, ids=lambda c: c[0].split("\n")[-1][:40])
+def test_models_as_numpy_users_write_them(case):
+    block, wrt, ref = case
+    d = derive(block, wrt=list(wrt))
+    sizes = dict(SIZES, p=3, h=5)
+    rng = np.random.default_rng(21)
+    arrays = {}
+    for name, info in d.symbols.items():
+        if info.role in ("defined", "target"):
+            continue
+        shape = tuple(sizes[s] if isinstance(s, str) else s for s in info.shape)
+        arrays[name] = (
+            np.abs(rng.standard_normal(shape)) + 1.0
+            if name == "nu"
+            else (rng.standard_normal(shape))
+        )
+    got = d.gradient_function(*wrt)(**arrays)
+    got = got if len(wrt) > 1 else (got,)
+    names = list(arrays)
+    want = jax.grad(ref, argnums=[names.index(v) for v in wrt])(*arrays.values())  # JAX
+    for v, g, w in zip(wrt, got, want):
+        assert_close(g, np.asarray(w), RTOL, what=f"gradient wrt {v}")
+    assert_close(d.function()(**arrays), float(ref(*arrays.values())), 1e-12)

@@ -11,7 +11,7 @@ from .. import expr as E
 from .. import expr_axis as X
 from .rules import RULE_NAMERS, rule
 
-_AXIS_WORDS = {None: "all entries", 0: "axis 0", 1: "axis 1"}
+_AXIS_WORDS = {None: "all entries", 0: "axis 0 (each column)", 1: "axis 1 (each row)"}
 
 
 def _weights(op: str, a: E.Expr, axis) -> E.Expr:

@@ -87,6 +87,8 @@ def _reduction(fname: str):
         keepdims = read_keepdims(reader, fname, keywords)
         if a.is_scalar:
             return a  # NumPy reduces a 0-d array to itself
+        if E.is_col(a.shape):
+            axis = None  # a vector's one axis: max(x, axis=0) is max(x)
         if fname == "sum":
             return X.axis_sum(a, axis, keepdims)
         if fname == "mean":
