@@ -17,6 +17,7 @@ from .expr import (
     Dim,
     Expr,
     Ones,
+    SizeOf,
     _common_shape,
     describe,
     is_col,
@@ -157,8 +158,10 @@ def count(shape, axis) -> Expr:
         for d in dims:
             total *= d.coef
         return Const(total)
-    # sum(ones(...)) is printed as the dims themselves (`k`, `n k`) and parses back
-    return summation(Ones((dims[0], dims[1] if len(dims) > 1 else None)))
+    size = dims[0]
+    for d in dims[1:]:
+        size = size * d
+    return SizeOf(size)  # the dims as a number: `n`, `k*n`
 
 
 def axis_mean(x: Expr, axis, keepdims: bool = False) -> Expr:

@@ -1,6 +1,6 @@
 """Entrywise functions with two arguments or a spelling of their own (NumPy's names).
 
-`maximum(A, B)`, `minimum(A, B)` (either may be a scalar: `maximum(Z, 0)` is the ReLU);
+`maximum(A, B)`, `minimum(A, B)` with NumPy's broadcasting (`maximum(Z, 0)` is the ReLU);
 `square(x)` and `reciprocal(x)` are `x**2` and `x**-1`; `heaviside(x, 0.5)` and
 `polygamma(1, x)` are read so that printed derivatives parse back.
 """
@@ -12,18 +12,16 @@ import ast
 from .. import expr as E
 from .. import expr_axis as X
 from ..errors import NotSupportedError
+from .broadcast import broadcast_all, broadcast_shapes, clash_message, numpy_shape
 from .registry import register
 
 
 def _extremum(op: str):
     def build(reader, node, args, keywords):
         a, b = args
-        if not (a.is_scalar or b.is_scalar) and a.shape != b.shape:
-            reader.fail_node(
-                f"{op} of a {E.describe(a)} and a {E.describe(b)}: the shapes must be equal, "
-                "or one of them a scalar",
-                node,
-            )
+        if broadcast_shapes(numpy_shape(a.shape), numpy_shape(b.shape)) is None:
+            reader.fail_node(clash_message(f"take the {op} of", a, b), node)
+        a, b = broadcast_all([a, b])  # NumPy's broadcasting, as products with ones
         if type(a) is E.Const and type(b) is E.Const:
             return E.Const(max(a.value, b.value) if op == "maximum" else min(a.value, b.value))
         return X.Extremum(op, a, b)
