@@ -3,7 +3,7 @@
 One table, read by the evaluator, the printers and the code generator; the derivatives live in
 `calculus/rules_entrywise.py`. Names are NumPy's (SciPy's for erf, gammaln, digamma). Two
 functions exist only as derivatives, with the spelling that parses back: `heaviside(x, 0.5)` (the
-tie weight of maximum/minimum) and `polygamma(1, x)` (the derivative of digamma).
+tie weight of maximum/minimum) and `polygamma(n, x)` for n = 1, 2, 3 (derivatives of digamma).
 
 This module imports nothing from the rest of the package, so `expr.py` can read its names.
 """
@@ -27,10 +27,13 @@ def _special(name: str):
     return call
 
 
-def _trigamma(x):
-    import scipy.special
+def _polygamma(order: int):
+    def call(x):
+        import scipy.special
 
-    return scipy.special.polygamma(1, x)
+        return scipy.special.polygamma(order, x)
+
+    return call
 
 
 @dataclass(frozen=True)
@@ -55,6 +58,9 @@ def _scipy_helper(name: str, call: str) -> tuple[str, str]:
         f"\ndef _gw_{name}(x):\n    from scipy import special\n\n    return special.{call}\n",
     )
 
+
+#: polygamma(n, x) for the orders that derivatives of gammaln reach (n = 0 is digamma)
+POLYGAMMA = {1: "trigamma", 2: "tetragamma", 3: "pentagamma"}
 
 EXTRA_ENTRYWISE: dict[str, Entrywise] = {
     "abs": Entrywise(np.abs, "abs({})", r"\left\lvert {} \right\rvert", "np.abs({})"),
@@ -86,13 +92,16 @@ EXTRA_ENTRYWISE: dict[str, Entrywise] = {
         _scipy_helper("digamma", "digamma(x)"),
     ),
     # derivatives only (their text is NumPy's/SciPy's spelling, which the language reads back)
-    "trigamma": Entrywise(
-        _trigamma,
-        "polygamma(1, {})",
-        r"\psi'\left({}\right)",
-        "_gw_trigamma({})",
-        _scipy_helper("trigamma", "polygamma(1, x)"),
-    ),
+    **{
+        name: Entrywise(
+            _polygamma(order),
+            f"polygamma({order}, {{}})",
+            r"\psi^{(" + str(order) + r")}\left({}\right)",
+            f"_gw_{name}({{}})",
+            _scipy_helper(name, f"polygamma({order}, x)"),
+        )
+        for order, name in POLYGAMMA.items()
+    },
     "heaviside": Entrywise(
         lambda x: np.heaviside(x, 0.5),
         "heaviside({}, 0.5)",
@@ -102,4 +111,4 @@ EXTRA_ENTRYWISE: dict[str, Entrywise] = {
 }
 
 #: functions written in the language by a spelling of their own (see `calls_entrywise.py`)
-SPELLED_APART = ("trigamma", "heaviside")
+SPELLED_APART = ("heaviside", *POLYGAMMA.values())

@@ -892,7 +892,6 @@ def mul(*factors: Expr) -> Expr:
     coef = Fraction(1)
     bases: dict = {}
     order: list = []
-    ones = False
     for f in flat:
         if type(f) is Const:
             coef *= f.value
@@ -900,7 +899,6 @@ def mul(*factors: Expr) -> Expr:
         if type(f) is Zero:
             return zero_like(shape)
         if type(f) is Ones:
-            ones = True
             continue
         if type(f) is Power and type(f.args[1]) is Const:
             base, k = f.args[0], f.args[1].value
@@ -921,7 +919,8 @@ def mul(*factors: Expr) -> Expr:
         out.append(base if k == 1 else power(base, Const(k)))
     scalars = sorted((f for f in out if f.is_scalar), key=_factor_order)
     arrays = sorted((f for f in out if not f.is_scalar), key=_factor_order)
-    if ones and not arrays and not is_scalar_shape(shape):
+    if not arrays and not is_scalar_shape(shape):
+        # array factors that cancelled (s * s**-1) still leave an array: the scalars broadcast
         arrays = [Ones(shape)]
     parts = ([Const(coef)] if coef != 1 else []) + scalars + arrays
     if not parts:

@@ -15,8 +15,8 @@ def _zero(a, fx):
     return E.zero_like(a.shape)
 
 
-def _trigamma_derivative(a, fx):
-    raise NotSupportedError("not supported yet: the derivative of polygamma(1, x)")
+def _last_polygamma(a, fx):
+    raise NotSupportedError("not supported yet: the derivative of polygamma(3, x)")
 
 
 EXTRA_DERIVATIVES = {
@@ -36,7 +36,9 @@ EXTRA_DERIVATIVES = {
     ),
     "gammaln": lambda a, fx: E.Func("digamma", a),
     "digamma": lambda a, fx: E.Func("trigamma", a),
-    "trigamma": _trigamma_derivative,
+    "trigamma": lambda a, fx: E.Func("tetragamma", a),
+    "tetragamma": lambda a, fx: E.Func("pentagamma", a),
+    "pentagamma": _last_polygamma,
 }
 
 #: the subgradient chosen at a kink, added to the rule's name where the function has one

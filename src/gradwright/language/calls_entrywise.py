@@ -11,6 +11,7 @@ import ast
 
 from .. import expr as E
 from .. import expr_axis as X
+from ..entrywise import POLYGAMMA
 from ..errors import NotSupportedError
 from .broadcast import broadcast_all, broadcast_shapes, clash_message, numpy_shape
 from .registry import register
@@ -68,10 +69,12 @@ def _heaviside(reader, node, args, keywords):
 
 @register("polygamma", 2, 2)
 def _polygamma(reader, node, args, keywords):
-    if not _is_number(node.args[0], 1):
+    order = next((n for n in POLYGAMMA if _is_number(node.args[0], n)), None)
+    if order is None:
         reader.fail_node(
-            "not supported yet: polygamma(n, x) with n other than 1 (use digamma(x) for n = 0)",
+            "not supported yet: polygamma(n, x) with n other than 1, 2, 3 (use digamma(x) "
+            "for n = 0)",
             node.args[0],
             NotSupportedError,
         )
-    return E.Func("trigamma", args[1])
+    return E.Func(POLYGAMMA[order], args[1])

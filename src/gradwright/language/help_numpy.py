@@ -44,12 +44,12 @@ NUMPY_CONSTRUCTS: tuple[tuple[str, str, str], ...] = (
      "2 exp(-x²)/√π"),
     ("gammaln(x), digamma(x)",
      "scipy.special.gammaln, digamma",
-     "digamma(x); polygamma(1, x) (its own derivative is not supported yet)"),
+     "digamma(x), then polygamma(1, x), up to polygamma(3, x)"),
     ("log(exp(Z) @ ones(k)), log(sum(exp(x))), log(1 + exp(x)), log(sigmoid(x))",
      "the same values, which overflow to inf at logits of a few hundred",
      "read as logsumexp(Z, axis=1), logsumexp(x), softplus(x), -softplus(-x): finite at ±3000"),
     ("heaviside(x, 0.5), max_weights(Z, axis=1), polygamma(1, x)",
-     "NumPy's/SciPy's step and trigamma; the max tie weights",
+     "NumPy's/SciPy's step and polygamma; the max tie weights",
      "appear in printed derivatives and parse back"),
 )  # fmt: skip
 
