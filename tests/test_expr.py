@@ -52,6 +52,7 @@ EXAMPLES = {
     E.Named: E.Named("R", B),
     E.D: E.D(B),
     E.KronContract: E.KronContract(E.Kron(A, B), B, n, n, "left"),
+    E.Tril: E.Tril(A),
 }
 
 #: classes that never occur inside a differential (or are its leaves, handled by the driver),

@@ -186,6 +186,9 @@ class _Evaluator:
     def _Diagm(self, e):
         return np.diag(self.ev(e.args[0])[:, 0])
 
+    def _Tril(self, e):
+        return np.tril(self.ev(e.args[0]))
+
     def _Sum(self, e):
         return np.array([[np.sum(self.ev(e.args[0]))]])
 

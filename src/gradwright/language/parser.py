@@ -21,8 +21,10 @@ from .. import expr as E
 from ..errors import FormulaError, NotSupportedError, ShapeError
 from .registry import CALLS
 
-STRUCTURE_WORDS = ("symmetric", "spd", "diagonal", "positive", "orthogonal", "square", "invertible")
-_SQUARE_WORDS = {"symmetric", "spd", "diagonal", "orthogonal", "square", "invertible"}
+STRUCTURE_WORDS = (
+    "symmetric", "spd", "diagonal", "positive", "orthogonal", "square", "invertible", "lower",
+)  # fmt: skip
+_SQUARE_WORDS = {"symmetric", "spd", "diagonal", "orthogonal", "square", "invertible", "lower"}
 
 #: bounds on the work one block may ask for (documented in docs/limits.md)
 LIMITS = {
