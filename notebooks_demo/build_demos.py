@@ -431,7 +431,7 @@ X: (n, p)          # features, one row per passenger
 Y: (n, k)          # the class chosen, one-hot without the base class
 W: (p, k)          # weights
 b: (k,)            # intercepts
-Z = X @ W + outer(ones(n), b)
+Z = X @ W + b
 nll = sum(log(1 + exp(Z) @ ones(k))) - sum(Y * Z)""",
     ),
     (

@@ -12,12 +12,16 @@ from . import expr as E
 from .calculus import adjoint, differential, expand_once, has_pending, kronecker_form
 from .errors import FormulaError, NotSupportedError, ShapeError
 from .language import Block
+from .matrix_checks import adjust_samples
+from .matrix_functions import NODES as _MATRIX_NODES
 from .printing import latex, symbol_latex, text
 from .printing import numpy_code as C
 from .sampling import default_sizes, needs_positive, sample_inputs
 from .simplify import simplify
 
 MAX_STEPS = 40
+#: the widest line of a printed step, in ems, before it breaks at an operator
+LINE_BUDGET = 36.0
 #: Hessian-vector products are generated only for gradients up to this size (written out)
 MAX_HESSIAN_GRADIENT = 2_000
 
@@ -298,12 +302,16 @@ class Derivation:
 
     def latex(self) -> str:
         """The derivation as one aligned environment, rule names beside each line."""
+        from .printing.layout import broken_lines, rule_math
+
         lines = []
         prev_lhs = None
         for step in self.steps[1:]:
             lhs = step.lhs_latex if step.lhs_latex != prev_lhs else ""
-            rule = rf" && \text{{{_latex_text(step.rule)}}}" if step.rule else ""
-            lines.append(f"{lhs} &= {step.latex()}{rule}")
+            rule = f" && {rule_math(step.rule)}" if step.rule else ""
+            first, *rest = broken_lines(step.expr, LINE_BUDGET)
+            lines.append(f"{lhs} &= {first}{rule}")
+            lines.extend(rf"&\qquad {more}" for more in rest)
             prev_lhs = step.lhs_latex
         return "\\begin{aligned}\n" + " \\\\\n".join(lines) + "\n\\end{aligned}"
 
@@ -316,9 +324,13 @@ class Derivation:
 
     def result_latex(self) -> str:
         lines = []
+        from .printing.layout import broken_lines
+
         for step in self.steps:
             if step.kind in ("gradient", "jacobian"):
-                lines.append(f"{step.lhs_latex} &= {step.latex()}")
+                first, *rest = broken_lines(step.expr, LINE_BUDGET)
+                lines.append(f"{step.lhs_latex} &= {first}")
+                lines.extend(rf"&\qquad {more}" for more in rest)
         return "\\begin{aligned}\n" + " \\\\\n".join(lines) + "\n\\end{aligned}"
 
     def to_latex(self) -> str:
@@ -350,9 +362,11 @@ class Derivation:
         missing = [d for d in self.block.dims if d not in all_sizes]
         if missing:  # pragma: no cover - default_sizes covers every dim
             raise FormulaError(f"no size for dims {', '.join(missing)}")
-        return sample_inputs(
+        drawn = sample_inputs(
             self.block.declarations, all_sizes, seed, positive=needs_positive(self.expr)
         )
+        # spectral functions and matrix equations need more than the structure words say
+        return adjust_samples(self.expr, self.block.declarations, drawn, seed)
 
     @functools.cached_property
     def supports_complex_step(self) -> bool:
@@ -362,10 +376,12 @@ class Derivation:
                 return False
             if t in (E.Solve, E.Inverse) and E.is_spd(node.args[0]):
                 return False
+            if t in _MATRIX_NODES:  # eigh, cholesky and SciPy's solvers: no complex step
+                return False
         return True
 
     def _cost(self) -> C.CostModel:
-        return C.CostModel(C.guess_sizes(self.expr, self.size_hints))
+        return C.CostModel(C.guess_sizes(self.expr, self.size_hints), hinted=self.size_hints)
 
     def _specs(self) -> list:
         tgt_shape = self.expr.shape
@@ -450,11 +466,9 @@ class Derivation:
                     "_jac",
                     loop=(
                         f"    _n_in, _n_out = {n_in}, {n_out}\n"
-                        "    _jac = np.empty((_n_out, _n_in), dtype=np.result_type(float, "
-                        + (gen.required[0] if gen.required else "0.0")
-                        + "))\n"
+                        "    _jac = np.empty((_n_out, _n_in), dtype=_dims.dtype)\n"
                         "    for _k in range(_n_in):\n"
-                        "        _e = np.zeros(_n_in)\n"
+                        "        _e = np.zeros(_n_in, dtype=_dims.dtype)\n"
                         "        _e[_k] = 1.0\n"
                         f'        _col = _gw_functions["jvp_{v}"]({reshape_in}, {call_args})\n'
                         '        _jac[:, _k] = np.reshape(_col, -1, order="F")'
@@ -486,9 +500,9 @@ class Derivation:
                         "_hess",
                         loop=(
                             f"    _n_in = {n_in}\n"
-                            "    _hess = np.empty((_n_in, _n_in))\n"
+                            "    _hess = np.empty((_n_in, _n_in), dtype=_dims.dtype)\n"
                             "    for _k in range(_n_in):\n"
-                            "        _e = np.zeros(_n_in)\n"
+                            "        _e = np.zeros(_n_in, dtype=_dims.dtype)\n"
                             "        _e[_k] = 1.0\n"
                             f'        _col = _gw_functions["hvp_{v}"]({reshape_in}, {call_args})\n'
                             '        _hess[:, _k] = np.reshape(_col, -1, order="F")'
@@ -726,13 +740,6 @@ def _partial(target: str, var: str) -> str:
 
 def _name_latex(name: str) -> str:
     return symbol_latex(name)
-
-
-def _latex_text(words: str) -> str:
-    out = words.replace("\\", "")
-    for a, b in (("ᵀ", "^T"), ("⊗", " kron "), ("_", r"\_"), ("&", r"\&"), ("%", r"\%")):
-        out = out.replace(a, b)
-    return out
 
 
 def _plain_lhs(step: Step, target: str) -> str:

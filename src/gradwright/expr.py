@@ -187,7 +187,23 @@ class Expr:
         return self._key
 
     def __repr__(self):
-        return self.key()
+        """The formula in the formula language, e.g. `2 * (X.T @ (X @ W - Y))`."""
+        return self._printed("text", self.key)
+
+    def __str__(self) -> str:
+        return self.__repr__()
+
+    def _repr_latex_(self) -> str:
+        """The formula as math in a notebook."""
+        return "$\\displaystyle " + self._printed("latex", lambda: r"\text{(not printable)}") + "$"
+
+    def _printed(self, kind: str, fallback) -> str:
+        from .printing import latex, text  # the printers import this module
+
+        try:
+            return (text if kind == "text" else latex)(self)
+        except Exception:  # a node without a printer yet: its key still identifies it
+            return fallback()
 
     @property
     def symbols(self) -> frozenset[str]:
@@ -642,12 +658,73 @@ class KronContract(Expr):
         return (self.args[2], self.args[3])
 
 
+class SizeOf(Expr):
+    """The size of a declared dim used as a number (`n / 2`): a scalar known at call time."""
+
+    __slots__ = ()
+
+    def _infer_shape(self):
+        return SCALAR
+
+    @property
+    def dim(self) -> Dim:
+        return self.args[0]
+
+
+class Pi(Expr):
+    """The constant π (`pi` in the formula language)."""
+
+    __slots__ = ()
+
+    def _infer_shape(self):
+        return SCALAR
+
+
+def _axis_take(size: OptDim, sel) -> OptDim:
+    """The length an axis keeps under a selector (see `Index`)."""
+    if sel is None:
+        if size is not None:
+            raise ShapeError("an index selector is missing for an axis")
+        return None
+    if size is None:
+        raise ShapeError("an index selector for a unit axis")
+    if sel[0] == "at":
+        return None
+    start, stop = sel[1], sel[2]
+    if start is None and stop is None:
+        return size
+    if isinstance(stop, Dim) and start is None:
+        return stop
+    if start is None and isinstance(stop, int) and stop > 0:
+        return Dim.of(stop)
+    if isinstance(start, int) and isinstance(stop, int) and (start < 0) == (stop < 0):
+        return Dim.of(stop - start)
+    if isinstance(start, int) and start < 0 and stop is None:
+        return Dim.of(-start)
+    raise ShapeError("not supported yet: a slice whose length is not a dim or a number")
+
+
+class Index(Expr):
+    """Constant indexing `a[rows, cols]`, linear in a; NumPy's positions (negative from the end).
+
+    Each selector is None for a unit axis, ("at", i) for one position (the axis is dropped) or
+    ("slice", start, stop) with bounds an int, a Dim (its size, from the start) or None (open).
+    """
+
+    __slots__ = ()
+
+    def _infer_shape(self):
+        a, rows, cols = self.args
+        return (_axis_take(a.shape[0], rows), _axis_take(a.shape[1], cols))
+
+
 NODE_CLASSES = (
     Symbol, Differential, Const, Identity, Ones, Zero, Commutation, Add, Mul, MatMul, Transpose,
     Power, Func, Trace, Det, LogDet, Inverse, Solve, Kron, Vec, Unvec, Diag, Diagm, Sum, Norm,
     LogSumExp, Softmax, MatPow, Named, D, KronContract,
     Tril,
 )  # fmt: skip
+NODE_CLASSES += (SizeOf, Pi, Index)
 
 # ---------------------------------------------------------------------------------------------
 # structure predicates
@@ -696,7 +773,8 @@ def _is_symmetric(e: Expr) -> bool:
             if fs[i] != transpose(fs[n - 1 - i]):
                 return False
         return n % 2 == 0 or is_symmetric(fs[n // 2])
-    return False
+    known = getattr(e, "known_symmetric", None)  # node families in their own modules
+    return known() if known is not None else False
 
 
 def is_spd(e: Expr) -> bool:
@@ -711,7 +789,8 @@ def is_spd(e: Expr) -> bool:
         consts = [f for f in e.args if isinstance(f, Const)]
         others = [f for f in e.args if not isinstance(f, Const)]
         return len(others) == 1 and all(c.value > 0 for c in consts) and is_spd(others[0])
-    return False
+    known = getattr(e, "known_spd", None)  # node families in their own modules
+    return known() if known is not None else False
 
 
 def is_diagonal(e: Expr) -> bool:
@@ -1144,6 +1223,32 @@ def inverse(a: Expr) -> Expr:
     return Inverse(a)
 
 
+FULL = ("slice", None, None)
+
+
+def index(a: Expr, rows, cols) -> Expr:
+    """a[rows, cols] with the canonical forms: a full selection is a itself, zeros stay zeros."""
+    if rows in (None, FULL) and cols in (None, FULL):
+        return a
+    if type(a) is Zero:
+        return zero_like(Index(a, rows, cols).shape)
+    if type(a) is Mul and a.scalar_factors:
+        arr = a.array_factors
+        return mul(*a.scalar_factors, index(arr[0] if len(arr) == 1 else Mul(*arr), rows, cols))
+    if type(a) is Add:
+        return add(*(index(t, rows, cols) for t in _terms_broadcast(a)))
+    return Index(a, rows, cols)
+
+
+def selection(size: Dim, sel) -> Expr:
+    """The constant matrix S with S @ v = v[sel] for a vector v of length `size` (eye(size)[sel]).
+
+    For one position S is the unit vector (a column), so that v[i] = Sᵀ v.
+    """
+    s = Index(Identity(size), sel, FULL)
+    return transpose(s) if sel[0] == "at" else s
+
+
 def sym_part(g: Expr) -> Expr:
     """(G + G^T) / 2, the gradient in the space of symmetric matrices."""
     if is_symmetric(g):
@@ -1217,6 +1322,8 @@ def rebuild_smart(x: Expr, ch: list[Expr]) -> Expr:
         return inverse(ch[0])
     if t is Unvec:
         return unvec(ch[0], x.args[1], x.args[2])
+    if t is Index:
+        return index(ch[0], x.args[1], x.args[2])
     return x.rebuild(ch)
 
 
@@ -1254,3 +1361,9 @@ def expanded_size(e: Expr, limit: int) -> int:
         stack.append((x, True))
         stack.extend((c, False) for c in x.children if id(c) not in memo)
     return memo[id(e)]
+
+
+# node families in their own modules; imported last because they build on the classes above
+from .matrix_functions import NODES as _MATRIX_NODES  # noqa: E402
+
+NODE_CLASSES = NODE_CLASSES + _MATRIX_NODES

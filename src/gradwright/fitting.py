@@ -464,7 +464,8 @@ def values_function(derivation):
     """`values(**arrays) -> {definition: value}`, the target included."""
     ns: dict = {}
     # our own printer wrote this text from the tree; no user text is executed
-    exec(compile(values_source(derivation), "<gradwright values>", "exec"), ns)  # noqa: S102
+    source = values_source(derivation)
+    exec(compile(source, "<gradwright values>", "exec"), ns)  # noqa: S102
     raw = ns["values"]
     names = list(derivation.block.definitions)
 

@@ -32,7 +32,7 @@ MNLOGIT = """X: (n, p)
 Y: (n, k)
 W: (p, k)
 b: (k,)
-Z = X @ W + outer(ones(n), b)
+Z = X @ W + b
 nll = sum(log(1 + exp(Z) @ ones(k))) - sum(Y * Z)"""
 
 

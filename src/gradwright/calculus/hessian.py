@@ -96,7 +96,8 @@ def block_hvp_function(derivation):
     """The generated `block_hvp` callable (directions and arrays by keyword)."""
     ns: dict = {}
     # our own printer wrote this text from the tree; no user text is executed
-    exec(compile(block_hvp_source(derivation), "<gradwright block Hessian>", "exec"), ns)  # noqa: S102
+    source = block_hvp_source(derivation)
+    exec(compile(source, "<gradwright block Hessian>", "exec"), ns)  # noqa: S102
     return ns["block_hvp"]
 
 
