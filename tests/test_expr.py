@@ -53,6 +53,7 @@ EXAMPLES = {
     E.Named: E.Named("R", B),
     E.D: E.D(B),
     E.KronContract: E.KronContract(E.Kron(A, B), B, n, n, "left"),
+    E.Tril: E.Tril(A),
     E.SizeOf: E.SizeOf(n),
     E.Pi: E.Pi(),
     E.Index: E.Index(B, ("slice", 1, 3), ("at", -1)),

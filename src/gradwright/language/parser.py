@@ -25,8 +25,10 @@ from .broadcast import broadcast_all, broadcast_shapes, clash_message, internal_
 from .registry import CALLS
 from .subscripts import subscript
 
-STRUCTURE_WORDS = ("symmetric", "spd", "diagonal", "positive", "orthogonal", "square", "invertible")
-_SQUARE_WORDS = {"symmetric", "spd", "diagonal", "orthogonal", "square", "invertible"}
+STRUCTURE_WORDS = (
+    "symmetric", "spd", "diagonal", "positive", "orthogonal", "square", "invertible", "lower",
+)  # fmt: skip
+_SQUARE_WORDS = {"symmetric", "spd", "diagonal", "orthogonal", "square", "invertible", "lower"}
 
 #: bounds on the work one block may ask for (documented in docs/limits.md)
 LIMITS = {

@@ -261,6 +261,9 @@ class LatexPrinter(LatexAxisMixin, Printer):
     def _print_Diagm(self, e):
         return self.call(r"\operatorname{Diag}", e.args[0])
 
+    def _print_Tril(self, e):
+        return self.call(r"\operatorname{tril}", e.args[0])
+
     def _print_Sum(self, e):
         a = e.args[0]
         if type(a) is E.Ones:  # the number of entries

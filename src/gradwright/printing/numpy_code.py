@@ -349,6 +349,9 @@ class NumpyPrinter(NumpyAxisMixin, TextPrinter):
     def _print_Diagm(self, e):
         return f"np.diag({self._print(e.args[0])})"
 
+    def _print_Tril(self, e):
+        return f"np.tril({self._print(e.args[0])})"
+
     def _print_Kron(self, e):
         a, b = e.args
         return f"np.kron({self._print(a)}, {self._print(b)})"
