@@ -90,6 +90,9 @@ def sizes_for(derivation, sizes: dict | None = None) -> dict:
 
 def _sample(shape, structure, rng, positive=False):
     words = set(structure)
+    if len(shape) == 2 and "lower" in words:  # a Cholesky-like factor: positive diagonal
+        n = shape[0]
+        return np.tril(rng.standard_normal((n, n)), -1) + np.diag(rng.uniform(0.5, 2.0, n))
     if len(shape) == 2 and words & {"spd", "symmetric", "diagonal", "orthogonal", "invertible"}:
         n = shape[0]
         if "spd" in words:
@@ -140,13 +143,16 @@ def random_direction(info, value, rng):
 
 
 def project(g, structure):
-    """The symmetric part (symmetric/spd) or the diagonal part (diagonal) of a matrix."""
+    """The symmetric part (symmetric/spd), the diagonal part (diagonal) or the lower triangle
+    (lower) of a matrix."""
     g = np.asarray(g)
     if g.ndim != 2:
         return g
     words = set(structure)
     if "diagonal" in words:
         return np.diag(np.diag(g))
+    if "lower" in words:
+        return np.tril(g)
     if words & {"symmetric", "spd"}:
         return (g + g.T) / 2
     return g

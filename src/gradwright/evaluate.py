@@ -190,6 +190,9 @@ class _Evaluator(AxisEvaluator):
     def _Diagm(self, e):
         return np.diag(self.ev(e.args[0])[:, 0])
 
+    def _Tril(self, e):
+        return np.tril(self.ev(e.args[0]))
+
     def _Sum(self, e):
         return np.array([[np.sum(self.ev(e.args[0]))]])
 

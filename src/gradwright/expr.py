@@ -560,6 +560,18 @@ class Diagm(Expr):
         return (x.shape[0], x.shape[0])
 
 
+class Tril(Expr):
+    """The lower triangle of a matrix, diagonal included (NumPy's `tril`); the rest zero."""
+
+    __slots__ = ()
+
+    def _infer_shape(self):
+        a = self.args[0]
+        if not is_matrix_shape(a.shape):
+            raise ShapeError(f"tril needs a matrix, got a {describe(a)}")
+        return a.shape
+
+
 class Sum(Expr):
     __slots__ = ()
 
@@ -713,6 +725,7 @@ NODE_CLASSES = (
     Symbol, Differential, Const, Identity, Ones, Zero, Commutation, Add, Mul, MatMul, Transpose,
     Power, Func, Trace, Det, LogDet, Inverse, Solve, Kron, Vec, Unvec, Diag, Diagm, Sum, Norm,
     LogSumExp, Softmax, MatPow, Named, D, KronContract,
+    Tril,
 )  # fmt: skip
 NODE_CLASSES += (SizeOf, Pi, Index)
 
@@ -1145,6 +1158,21 @@ def diag(a: Expr) -> Expr:
     return Diag(a)
 
 
+def tril(a: Expr) -> Expr:
+    """The lower triangle; idempotent, and the identity on lower-triangular or diagonal
+    symbols, zeros and identities."""
+    t = type(a)
+    if t is Tril or t in (Zero, Identity) or t is Diagm:
+        return a
+    if t is Symbol and a.structure & {"lower", "diagonal"}:
+        return a
+    if t is Add:
+        return add(*(tril(x) for x in a.args))
+    if t is Mul and a.scalar_factors and len(a.array_factors) == 1:
+        return mul(*a.scalar_factors, tril(a.array_factors[0]))
+    return Tril(a)
+
+
 def diagm(x: Expr) -> Expr:
     if type(x) is Zero:
         return Zero((x.shape[0], x.shape[0]))
@@ -1292,6 +1320,8 @@ def rebuild_smart(x: Expr, ch: list[Expr]) -> Expr:
         return diag(ch[0])
     if t is Diagm:
         return diagm(ch[0])
+    if t is Tril:
+        return tril(ch[0])
     if t is Kron:
         return kron(ch[0], ch[1])
     if t is Solve:

@@ -98,6 +98,11 @@ def _diagm(x, d):
     return E.diagm(d(x.args[0]))
 
 
+@rule(E.Tril, "tril is linear", structural=True)
+def _tril(x, d):
+    return E.tril(d(x.args[0]))
+
+
 # --- products ---------------------------------------------------------------------------------
 
 

@@ -25,8 +25,10 @@ from .broadcast import broadcast_all, broadcast_shapes, clash_message, internal_
 from .registry import CALLS
 from .subscripts import subscript
 
-STRUCTURE_WORDS = ("symmetric", "spd", "diagonal", "positive", "orthogonal", "square", "invertible")
-_SQUARE_WORDS = {"symmetric", "spd", "diagonal", "orthogonal", "square", "invertible"}
+STRUCTURE_WORDS = (
+    "symmetric", "spd", "diagonal", "positive", "orthogonal", "square", "invertible", "lower",
+)  # fmt: skip
+_SQUARE_WORDS = {"symmetric", "spd", "diagonal", "orthogonal", "square", "invertible", "lower"}
 
 #: bounds on the work one block may ask for (documented in docs/limits.md)
 LIMITS = {
@@ -1134,7 +1136,7 @@ class _Reader:
                 self.fail_node(f"{fname} is a symbol, not a function", node.func)
             close = difflib.get_close_matches(fname, list(FUNCTIONS), n=1)
             hint = f"; did you mean {close[0]}?" if close else ""
-            if not close and (hasattr(builtins, fname) or fname in _GENERATED_MODULE_NAMES):
+            if hasattr(builtins, fname) or fname in _GENERATED_MODULE_NAMES:
                 hint = (
                     f": Python's builtins {_not_in_language('are')}, only its own functions "
                     "(trace, det, inv, solve, exp, ...)"

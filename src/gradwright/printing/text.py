@@ -178,6 +178,9 @@ class TextPrinter(TextAxisMixin, Printer):
     def _print_Diagm(self, e):
         return self.fn("diagm", self._print(e.args[0]))
 
+    def _print_Tril(self, e):
+        return f"{self.names.get('tril', 'tril')}({self._print(e.args[0])})"
+
     def _print_Sum(self, e):
         return self.fn("sum", self._print(e.args[0]))
 
