@@ -78,3 +78,41 @@ def test_not_positive_definite_built_matrix_is_named():
     d = derive(GAUSSIAN_PROCESS, wrt="s")
     with pytest.raises(np.linalg.LinAlgError, match=r"^C is not positive definite"):
         d.function()(K=-np.eye(3), s=0.1, y=np.ones(3))
+
+
+NETWORK = (
+    "X: (n, d)\nW1: (d, h)\nb1: (h,)\nW2: (h, k)\nb2: (k,)\nY: (n, k)\n"
+    "H = tanh(X @ W1 + b1)\nf = sum((H @ W2 + b2 - Y)**2)"
+)
+ATTENTION = "Q: (n, e)\nK: (m, e)\nV: (m, e)\nc: ()\nA = exp(c * Q @ K.T)\nf = sum((A @ V)**2)"
+
+
+def _network(X, W1, b1, W2, b2, Y):
+    return jnp.sum((jnp.tanh(X @ W1 + b1) @ W2 + b2 - Y) ** 2)
+
+
+def _attention(Q, K, V, c):
+    return jnp.sum((jnp.exp(c * Q @ K.T) @ V) ** 2)
+
+
+@pytest.mark.parametrize(
+    ("block", "wrt", "ref", "sizes", "once"),
+    [
+        (NETWORK, ("W1", "W2", "b1", "b2"), _network, {"n": 7, "d": 5, "h": 4, "k": 3}, "np.tanh("),
+        (ATTENTION, ("Q", "K", "V"), _attention, {"n": 6, "m": 5, "e": 3}, "np.exp("),
+    ],
+    ids=["network", "attention"],
+)
+def test_shared_and_transposed_subexpressions_computed_once(block, wrt, ref, sizes, once):
+    d = derive(block, wrt=list(wrt))
+    body = _body(d.source(), "value_and_gradient")
+    assert body.count(once) == 1  # the hidden layer / score matrix, also where transposed
+    assert "np.ones(" not in body and "np.outer(" not in body  # sums and broadcast views
+    a = d.sample_inputs(sizes=sizes, seed=6)
+    a = {k: (0.3 * v if k == "c" else v) for k, v in a.items()}
+    value, grads = d.value_and_gradient_function()(**a)
+    ja = {k: jnp.asarray(v, dtype=jnp.float64) for k, v in a.items()}
+    want = jax.grad(lambda vs: ref(**{**ja, **vs}))({v: ja[v] for v in wrt})
+    np.testing.assert_allclose(value, float(ref(**ja)), rtol=1e-10)
+    for v, got in zip(wrt, grads):
+        np.testing.assert_allclose(got, np.asarray(want[v]), rtol=1e-8, atol=1e-10)

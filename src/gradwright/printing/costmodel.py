@@ -17,6 +17,17 @@ class CostModel:
         self.hinted = frozenset(hinted)  # dims the user gave sizes for: decided here, not later
         self._orders: dict = {}
         self._flops: dict = {}
+        self._samples: dict = {}  # the models of sampled sizes, kept so their caches are reused
+
+    def sample_models(self, names) -> list:
+        """Cost models at sampled sizes of `names` (for choices the sizes decide)."""
+        key = frozenset(names)
+        models = self._samples.get(key)
+        if models is None:
+            from .calltime import sample_sizes  # (calltime builds on this module)
+
+            models = self._samples[key] = [CostModel(s) for s in sample_sizes(names)]
+        return models
 
     def dim(self, d) -> float:
         if d is None:
@@ -150,6 +161,10 @@ def lower(e: E.Expr, cost: CostModel, free=frozenset()) -> E.Expr:
     """inv(A) @ B -> solve(A, B); distribute products over sums where the cost model says so;
     a solve with a sum distributed where every term becomes a solve computed anyway or one
     with a single right-hand side."""
+    if free and len(free) <= 400:  # what is computed anyway is free transposed too
+        free = free | {
+            E.transpose(x) for x in free if type(x) in (E.Add, E.MatMul, E.Named, E.Func)
+        }
     first = _lower(e, cost, free, frozenset())
     solves = frozenset(n for n in E.walk(first) if type(n) is E.Solve)
     solves |= frozenset(n for x in free for n in E.walk(x) if type(n) is E.Solve)
@@ -207,6 +222,13 @@ def _thin_solve(x: E.Expr, solves=frozenset()) -> E.Expr:
     return x
 
 
+def _larger_than(e: E.Expr, limit: int) -> bool:
+    for count, _node in enumerate(E.walk(e)):
+        if count >= limit:
+            return True
+    return False
+
+
 def _unwrap(f: E.Expr) -> E.Expr:
     return f.body if type(f) is E.Named else f
 
@@ -226,13 +248,14 @@ def _distribute(m: E.MatMul, cost: CostModel, free, go) -> E.Expr:
             distributed = sum(model.flops(t, free) for t in terms)
             return distributed + model.size(m.shape) * len(terms) < 0.8 * factored
 
-        from .calltime import sample_sizes, sym_flops  # (calltime builds on this module)
+        from .calltime import sym_flops  # (calltime builds on this module)
 
         names = {n for x in E.walk(m) for d in x.shape if d is not None for n in d.names}
-        if names <= cost.hinted:
+        if names <= cost.hinted or _larger_than(m, 200):
+            # (past a few hundred parts, sampling sizes costs more than the choice can save)
             votes = {cheaper(cost)}
         else:
-            votes = {cheaper(CostModel(s)) for s in sample_sizes(names)}
+            votes = {cheaper(model) for model in cost.sample_models(names)}
         if votes == {True}:
             return go(E.add(*terms))
         if votes == {True, False}:  # the sizes decide: both forms, chosen at call time

@@ -68,6 +68,18 @@ def _gw_cho(a, label, declared=True):
         why = "it is declared spd" if declared else "it is built to be spd from spd matrices"
         raise np.linalg.LinAlgError(f"{label} is not positive definite ({why})") from None
 """,
+    "_gw_lstsq": """
+def _gw_lstsq(a, b, label):
+    x, _res, rank, _sv = np.linalg.lstsq(a, b, rcond=None)
+    if rank < min(a.shape):
+        warnings.warn(
+            f"{label} does not have full column rank ({rank} of {a.shape[1]}): the stationary "
+            "point is not unique; this is the one of least norm",
+            RuntimeWarning,
+            stacklevel=3,
+        )
+    return x
+""",
     "_gw_cho_solve": """
 def _gw_cho_solve(factor, b):
     from scipy.linalg import cho_solve
