@@ -19,7 +19,7 @@ def test_positional_call_names_the_function_and_the_fix():
     with pytest.raises(TypeError) as err:
         g(np.ones((3, 2)), np.ones(3), np.ones(2))
     assert str(err.value) == (
-        "gradient_w() got 3 arrays by position: pass arrays by keyword: "
+        "gradient_w() got 3 positional arguments: pass arrays by keyword: "
         "gradient_w(X=..., y=..., w=...)"
     )
 

@@ -256,7 +256,9 @@ class Derivation:
                 sym = self._vars[v]
                 why = "read off the gradient"
                 raw = self._raw_gradient(v)
-                if E.is_matrix_shape(sym.shape) and (sym.structure & E.SYMMETRIC_WORDS):
+                if "lower" in sym.structure and E.tril(raw) != raw:
+                    why = f"keep the lower triangle, since {v} is lower-triangular"
+                elif E.is_matrix_shape(sym.shape) and (sym.structure & E.SYMMETRIC_WORDS):
                     if "diagonal" in sym.structure:
                         why = f"keep the diagonal, since {v} is diagonal"
                     elif not E.is_symmetric(raw):
@@ -751,7 +753,7 @@ def _arrays_by_keyword(fn):
         if len(args) > len(positional):
             shown = ", ".join([*positional, *(f"{k}=..." for k in keywords)])
             raise TypeError(
-                f"{fn.__name__}() got {len(args)} arrays by position: pass arrays by "
+                f"{fn.__name__}() got {len(args)} positional arguments: pass arrays by "
                 f"keyword: {fn.__name__}({shown})"
             ) from None
         return fn(*args, **arrays)
@@ -770,7 +772,9 @@ def _words(sym: E.Symbol) -> tuple:
         implied |= {"symmetric", "invertible", "square"}
     if "orthogonal" in sym.structure:
         implied |= {"invertible", "square"}
-    order = ("symmetric", "spd", "diagonal", "positive", "orthogonal", "square", "invertible")
+    order = (
+        "symmetric", "spd", "diagonal", "lower", "positive", "orthogonal", "square", "invertible",
+    )  # fmt: skip
     return tuple(w for w in order if w in sym.structure and w not in implied)
 
 
@@ -810,6 +814,8 @@ def _project(g: E.Expr, sym: E.Symbol) -> E.Expr:
         return g
     if "diagonal" in sym.structure:
         return simplify(E.diagm(E.diag(g)))
+    if "lower" in sym.structure:
+        return simplify(E.tril(g))
     if sym.structure & E.SYMMETRIC_WORDS:
         return simplify(E.sym_part(g))
     return g

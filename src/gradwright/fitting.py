@@ -67,6 +67,8 @@ class Layout:
             if info.role == "constant"
         }
         self.bound: dict = {}  # dim name -> size, from pack() calls and constants seen
+
+    def _refuse_orthogonal(self) -> None:
         for v, kind in self.kinds.items():
             if kind == "orthogonal":
                 raise NotSupportedError(
@@ -109,6 +111,7 @@ class Layout:
 
     def shapes(self, length: int | None = None) -> dict:
         """variable -> concrete NumPy shape; one unknown dim is solved from `length`."""
+        self._refuse_orthogonal()
         shapes = self._resolve({})
         if shapes is None:
             unknown = sorted(
@@ -162,15 +165,25 @@ class Layout:
         return out
 
     def describe(self, shapes: dict | None = None) -> str:
-        shapes = shapes or self.shapes()
+        """The layout in words: each variable's shape, place and order in the packed vector."""
+        what_of = {
+            "full": "column-major",
+            "lower": "lower triangle, column by column",
+            "symmetric": "lower triangle, column by column",
+            "diagonal": "diagonal",
+            "orthogonal": "not packable",
+        }
+        if shapes is None:
+            try:
+                shapes = self.shapes()
+            except FormulaError:  # sizes not known yet: the order without the offsets
+                return "; ".join(
+                    f"{v} ({', '.join(map(str, self.symbolic[v]))}) ({what_of[self.kinds[v]]})"
+                    for v in self.variables
+                )
         parts = []
         for v, sl in self.slices(shapes).items():
-            what = {
-                "full": "column-major",
-                "lower": "lower triangle, column by column",
-                "symmetric": "lower triangle, column by column",
-                "diagonal": "diagonal",
-            }[self.kinds[v]]
+            what = what_of[self.kinds[v]]
             parts.append(f"{v} {shapes[v]} -> [{sl.start}:{sl.stop}] ({what})")
         return "; ".join(parts)
 
@@ -211,6 +224,7 @@ class Layout:
 
     def pack(self, *values, **arrays) -> np.ndarray:
         """`pack(W=W0, b=b0)` (or positionally in wrt order) -> the packed 1-D float vector."""
+        self._refuse_orthogonal()
         if values and arrays:
             raise TypeError("pass the variables either by name or in order, not both")
         if values:

@@ -53,6 +53,25 @@ def _eigvalsh_vjp(self, e):
     return u @ np.diag(self.ev(e.args[1])[:, 0]) @ u.T
 
 
+def _eigvalsh_vjp_jvp(self, e):
+    # from dU = U (Ω ∘ (Uᵀ dS U)), Ωᵢⱼ = 1/(λⱼ - λᵢ) (Magnus 1985), written out term by term
+    w, u = np.linalg.eigh(self.ev(e.args[0]))
+    g = self.ev(e.args[1])[:, 0]
+    c = u.T @ _sym(self.ev(e.args[2])) @ u
+    n = w.shape[0]
+    omega = np.zeros((n, n))
+    for i in range(n):
+        for j in range(n):
+            if i != j and w[j] != w[i]:
+                omega[i, j] = 1.0 / (w[j] - w[i])
+    du = u @ (omega * c)
+    return du @ np.diag(g) @ u.T + u @ np.diag(g) @ du.T
+
+
+def _tril_half(self, e):
+    return _phi(self.ev(e.args[0]))
+
+
 def _cholesky(self, e):
     return np.linalg.cholesky(self.ev(e.args[0]))
 
@@ -123,6 +142,8 @@ for _cls, _fn in {
     M.Eigvalsh: _eigvalsh,
     M.EigvalshJvp: _eigvalsh_jvp,
     M.EigvalshVjp: _eigvalsh_vjp,
+    M.EigvalshVjpJvp: _eigvalsh_vjp_jvp,
+    M.TrilHalf: _tril_half,
     M.Cholesky: _cholesky,
     M.CholeskyJvp: _cholesky_jvp,
     M.CholeskyVjp: _cholesky_vjp,

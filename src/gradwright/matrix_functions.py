@@ -109,6 +109,34 @@ class CholeskyVjp(Expr):
         return True
 
 
+class TrilHalf(Expr):
+    """Φ(X): the strict lower triangle of X plus half its diagonal (Murray 2016); linear."""
+
+    __slots__ = ()
+
+    def _infer_shape(self):
+        _need_square(self.args[0], "tril_half")
+        return self.args[0].shape
+
+
+class EigvalshVjpJvp(Expr):
+    """The derivative of U Diag(g) Uᵀ along E for fixed g: U (g^[1] ∘ (Uᵀ E U)) Uᵀ with
+    g^[1]ᵢⱼ = (gᵢ - gⱼ)/(λᵢ - λⱼ) (0 where i = j); args (S, g, E), linear in E."""
+
+    __slots__ = ()
+
+    def _infer_shape(self):
+        s, g, e = self.args
+        _need_square(s, "eigvalsh")
+        if g.shape != (s.shape[0], None):
+            raise ShapeError(f"the eigenvalue adjoint needs a ({s.shape[0]},) vector")
+        _same_square(s, e, "the eigenvalue second derivative")
+        return s.shape
+
+    def known_symmetric(self) -> bool:
+        return True
+
+
 # --- matrix functions ---------------------------------------------------------------------------
 
 
@@ -265,7 +293,8 @@ class SolveDiscreteLyapunov(Expr):
 
 
 NODES = (
-    Eigvalsh, EigvalshJvp, EigvalshVjp, Cholesky, CholeskyJvp, CholeskyVjp, MatrixFunction,
+    Eigvalsh, EigvalshJvp, EigvalshVjp, EigvalshVjpJvp, Cholesky, CholeskyJvp, CholeskyVjp,
+    TrilHalf, MatrixFunction,
     SpectralFrechet, ExpmFrechet, LogmFrechet, SolveSylvester, SolveContinuousLyapunov,
     SolveDiscreteLyapunov,
 )  # fmt: skip

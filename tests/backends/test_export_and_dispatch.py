@@ -237,3 +237,45 @@ def test_scipy_functions_come_from_the_library_or_are_refused_by_name():
         NotImplementedError, match="solve_continuous_lyapunov is not available for torch arrays"
     ):
         ns["value"](A=torch.asarray(A), Q=torch.asarray(Q))
+
+
+SPECTRAL = "S: (n, n) spd\nA: (n, n)\nf = sum(cholesky(S) * A) + sum(eigvalsh(S) ** 2)"
+
+
+@pytest.mark.parametrize("library", ["torch", "jax"])
+def test_eigvalsh_and_cholesky_on_tensors(library):
+    """The library's own eigh and cholesky, with the NumPy helpers' formulas for the
+    derivatives (reference: the NumPy functions, themselves checked against JAX)."""
+    convert = torch.asarray if library == "torch" else jnp.asarray
+    d = derive(SPECTRAL, wrt="S")
+    rng = np.random.default_rng(4)
+    M = rng.standard_normal((4, 4))
+    arrays = {"S": M @ M.T + 4 * np.eye(4), "A": rng.standard_normal((4, 4))}
+    data = {k: convert(v) for k, v in arrays.items()}
+    want = d.value_and_gradient_function()(**arrays)
+    got = d.value_and_gradient_function()(**data)
+    assert rel_err(np.asarray(got[0]), want[0]) <= 1e-12
+    assert rel_err(np.asarray(got[1]), want[1]) <= 1e-12
+    v = rng.standard_normal((4, 4))
+    v = v + v.T
+    for kind, direction in (("jvp", v), ("vjp", np.float64(0.7))):
+        fn = getattr(d, f"{kind}_function")("S")
+        got = fn(convert(direction), **data)
+        assert rel_err(np.asarray(got), fn(direction, **arrays)) <= 1e-10
+
+
+@pytest.mark.parametrize(
+    "block",
+    [
+        "A: (n, n)\nQ: (n, n) symmetric\nf = sum(solve_continuous_lyapunov(A, Q))",
+        "A: (n, n)\nf = trace(expm(A))",
+    ],
+)
+def test_matrix_equations_and_functions_are_refused_by_name(block):
+    d = derive(block, wrt="A")
+    A = -np.eye(3) + 0.1 * np.ones((3, 3))
+    arrays = {k: A for k in ("A", "Q") if k in d.symbols}
+    d.gradient_function()(**arrays)  # NumPy (and SciPy) compute it
+    name = "solve_continuous_lyapunov" if "lyapunov" in block else "expm"
+    with pytest.raises(NotImplementedError, match=f"{name} is not available for torch arrays"):
+        d.gradient_function()(**{k: torch.asarray(v) for k, v in arrays.items()})

@@ -209,3 +209,16 @@ def test_under_a_kernel_the_output_shows_table_and_plots(monkeypatch, shell):
     assert any("relative error" in h and "<table" in h for h in html)
     widgets = [o.data for o in cap.outputs if "application/vnd.jupyter.widget-view+json" in o.data]
     assert widgets, "the plots are shown as image widgets"
+
+
+def test_plot_legend_and_step_label_sit_outside_the_curves():
+    panel = CheckPanel(derive(DEMAND, wrt=["U", "V"]))
+    result = _press(panel)
+    figure = sweep_figure(result)
+    figure.canvas.draw()
+    axes = figure.axes[0]
+    frame = axes.get_window_extent()
+    legend = axes.get_legend().get_window_extent()
+    assert legend.x0 >= frame.x1  # right of the plotting area
+    label = next(t for t in axes.texts if t.get_text() == "chosen step").get_window_extent()
+    assert label.y0 >= frame.y1 - 1  # above the plotting area

@@ -121,3 +121,13 @@ def test_toggle_disabled_without_a_derivation():
 def test_panel_agrees_with_catalogue_search(query):
     panel, _ = _quiet(lambda: IdentityPanel(query))
     assert [i.id for i in panel.shown] == [i.id for i in identities.search(query, limit=12)]
+
+
+def test_conditions_read_as_words_and_symbols_not_source():
+    shown = [identity_html(i) for i in identities.all() if i.conditions]
+    assert shown
+    for page in shown:
+        when = page.split("when: ", 1)[1].split("</div>", 1)[0]
+        assert " (x) " not in when and ".T " not in when and "^{-1}" not in when, when
+    kron = identity_html(identities.get("kronecker-determinant"))
+    assert "A ⊗ B" in kron and "n × n" in kron

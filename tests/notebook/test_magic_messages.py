@@ -43,7 +43,7 @@ def test_injected_functions_called_positionally_say_what_to_do(shell):
     with pytest.raises(TypeError) as err:
         grad(Z, S, 3.0)
     text = str(err.value)
-    assert text.startswith("grad_nll() got 3 arrays by position")
+    assert text.startswith("grad_nll() got 3 positional arguments")
     assert "pass arrays by keyword: grad_nll(Z=..., S=..., days=...)" in text
     assert "gradient_S" not in text
     assert grad(Z=Z, S=S, days=3.0).shape == (2, 2)

@@ -92,6 +92,21 @@ def _eigvalsh_vjp(reader, node, args, keywords):
     return M.EigvalshVjp(s, g)
 
 
+@register("eigvalsh_vjp_jvp", 3, 3)
+def _eigvalsh_vjp_jvp(reader, node, args, keywords):
+    s = args[0]
+    _symmetric(
+        reader, node, s, "eigvalsh_vjp_jvp", "it uses the eigenvectors of a symmetric matrix"
+    )
+    return M.EigvalshVjpJvp(*args)
+
+
+@register("tril_half", 1, 1)
+def _tril_half(reader, node, args, keywords):
+    _square(reader, node, args[0], "tril_half")
+    return M.TrilHalf(args[0])
+
+
 @register("cholesky_jvp", 2, 2)
 def _cholesky_jvp(reader, node, args, keywords):
     _square(reader, node, args[0], "cholesky_jvp")

@@ -5,6 +5,7 @@ identities that apply to the last derivation's target.
 from __future__ import annotations
 
 import html
+import re
 
 __all__ = ["IdentityPanel", "identity_html"]
 
@@ -84,6 +85,30 @@ def _math(latex: str) -> str:
     return f"$${latex}$$"
 
 
+_CONDITION_SUBS = (
+    (re.compile(r"\s\(x\)\s"), " ⊗ "),
+    (re.compile(r"\b(\w{1,2}) x (\w{1,2})\b"), r"\1 × \2"),  # sizes, not "entry of x"
+    (re.compile(r"(?<=[\w)])\.T\b"), "ᵀ"),
+    (re.compile(r"\^T\b"), "ᵀ"),
+    (re.compile(r"\^\{-1\}"), "⁻¹"),
+    (re.compile(r"\binv\((\w)\)"), r"\1⁻¹"),
+    (re.compile(r"\bK_\{(\w),(\w)\}"), r"K(\1,\2)"),
+    (re.compile(r">="), "≥"),
+)
+
+
+def readable_condition(text: str) -> str:
+    """A catalogue condition in words and symbols, not formula source: `A (x) B` reads A ⊗ B,
+    `n x n` reads n × n, `A.T` reads Aᵀ.
+
+    >>> readable_condition("det(A (x) B) for A n x n, every entry of x > 0, A.T A = I, c >= 0")
+    'det(A ⊗ B) for A n × n, every entry of x > 0, Aᵀ A = I, c ≥ 0'
+    """
+    for pattern, repl in _CONDITION_SUBS:
+        text = pattern.sub(repl, text)
+    return text
+
+
 def identity_html(identity, note: str = "") -> str:
     """One identity as HTML with math: title, formula, conditions, source, family tags."""
     conditions = getattr(identity, "conditions", None) or ()
@@ -100,7 +125,7 @@ def identity_html(identity, note: str = "") -> str:
     if conditions:
         parts.append(
             "<div style='font-size:90%'>when: "
-            + html.escape("; ".join(map(str, conditions)))
+            + html.escape(readable_condition("; ".join(map(str, conditions))))
             + "</div>"
         )
     if getattr(identity, "source", None):

@@ -249,9 +249,16 @@ def _function_names() -> str:
     )
 
 
+def _numpy_constructs() -> str:
+    """The NumPy constructs of the formula language, one entry each."""
+    from gradwright.language.help_numpy import numpy_constructs_help
+
+    return numpy_constructs_help()
+
+
 GradwrightMagics.derive.__doc__ = _help(
     GradwrightMagics.derive.__doc__ or "",
-    _LANGUAGE_SUMMARY.format(functions=_function_names()),
+    _LANGUAGE_SUMMARY.format(functions=_function_names()) + "\n" + _numpy_constructs() + "\n",
 )
 GradwrightMagics.identities.__doc__ = _help(GradwrightMagics.identities.__doc__ or "")
 

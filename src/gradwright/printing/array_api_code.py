@@ -44,29 +44,6 @@ class _ToArrayApi(ast.NodeTransformer):
             )
         return self.generic_visit(node)
 
-    # --- the NumPy module's fast paths, which an array-API module does without ---------------
-
-    def visit_Try(self, node):
-        # the remembered-call fast path of the argument check: only the full check is kept
-        for handler in node.handlers:
-            for stmt in handler.body:
-                if isinstance(stmt, ast.Assign) and _calls(stmt.value, "_gw_check"):
-                    stmt.value.args = stmt.value.args[:1]
-                    return self.visit(ast.copy_location(stmt, node))
-        return self.generic_visit(node)
-
-    def visit_If(self, node):
-        # `if not cmath.isfinite(<sum of squares>): _gw_finite(x, what)` -> `_gw_finite(x, what)`
-        test = node.test
-        if (
-            isinstance(test, ast.UnaryOp)
-            and isinstance(test.op, ast.Not)
-            and "cmath.isfinite" in ast.unparse(test)
-            and len(node.body) == 1
-        ):
-            return self.visit(node.body[0])
-        return self.generic_visit(node)
-
     def visit_Name(self, node):
         if node.id == "np":
             return ast.copy_location(ast.Name("xp", node.ctx), node)
@@ -85,6 +62,28 @@ class _ToArrayApi(ast.NodeTransformer):
 
         node.value = wrap(node.value)
         return node
+
+    def visit_Try(self, node):
+        # the NumPy module skips its checks when the arguments' types, shapes and dtypes repeat
+        # those of the last call (a per-function cache); here the check runs on every call,
+        # since it also picks the namespace
+        for stmt in ast.walk(node):
+            if (
+                isinstance(stmt, ast.Assign)
+                and isinstance(stmt.value, ast.Call)
+                and isinstance(stmt.value.func, ast.Name)
+                and stmt.value.func.id == "_gw_check"
+            ):
+                stmt.value.args = stmt.value.args[:1]
+                return self.visit_Assign(stmt)
+        return self.generic_visit(node)
+
+    def visit_If(self, node):
+        # `if not cmath.isfinite(v): _gw_finite(v, ...)` reads a number now: for a Dask graph or
+        # a JAX trace that is wrong, so the namespace decides (gw_finite skips what is lazy)
+        if any(isinstance(n, ast.Name) and n.id == "cmath" for n in ast.walk(node.test)):
+            return [self.visit(stmt) for stmt in node.body]
+        return self.generic_visit(node)
 
     def visit_Assign(self, node):
         self.generic_visit(node)
@@ -112,18 +111,10 @@ class _ToArrayApi(ast.NodeTransformer):
     def visit_Call(self, node):
         self.generic_visit(node)
         f = node.func
-        # the namespace object sets the dtype of what it makes itself
-        node.keywords = [
-            k for k in node.keywords if not (k.arg == "dtype" and _is_dims_dtype(k.value))
-        ]
-        if isinstance(f, ast.Name) and f.id == "_gw_cho_solve":
-            f.id = "cho_solve"
-        if isinstance(f, ast.Name) and f.id in ("_gw_cho", "_gw_commutation"):
-            node.args = node.args[:2]  # (the NumPy module's extra flag and dtype)
         order_f = [k for k in node.keywords if k.arg == "order"]
         if isinstance(f, ast.Name) and f.id.startswith("_gw_") and f.id != "_gw_check":
             node.func = ast.Attribute(ast.Name("xp", ast.Load()), "gw_" + f.id[4:], ast.Load())
-        elif isinstance(f, ast.Name) and f.id in self.imported | {"cho_solve"}:
+        elif isinstance(f, ast.Name) and f.id in self.imported:
             node.func = ast.Attribute(ast.Name("xp", ast.Load()), f.id, ast.Load())
         elif isinstance(f, ast.Attribute) and f.attr == "reshape":
             on_xp = isinstance(f.value, ast.Name) and f.value.id == "xp"
@@ -134,16 +125,6 @@ class _ToArrayApi(ast.NodeTransformer):
             node.func = ast.Attribute(ast.Name("xp", ast.Load()), name, ast.Load())
             node.args, node.keywords = args, [k for k in node.keywords if k.arg != "order"]
         return node
-
-
-def _calls(value, name: str) -> bool:
-    return (
-        isinstance(value, ast.Call) and isinstance(value.func, ast.Name) and value.func.id == name
-    )
-
-
-def _is_dims_dtype(value) -> bool:
-    return ast.unparse(value) in ("_dims.dtype", "xp.dtype")
 
 
 def _is_f(value) -> bool:

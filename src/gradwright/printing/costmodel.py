@@ -17,6 +17,17 @@ class CostModel:
         self.hinted = frozenset(hinted)  # dims the user gave sizes for: decided here, not later
         self._orders: dict = {}
         self._flops: dict = {}
+        self._samples: dict = {}  # the models of sampled sizes, kept so their caches are reused
+
+    def sample_models(self, names) -> list:
+        """Cost models at sampled sizes of `names` (for choices the sizes decide)."""
+        key = frozenset(names)
+        models = self._samples.get(key)
+        if models is None:
+            from .calltime import sample_sizes  # (calltime builds on this module)
+
+            models = self._samples[key] = [CostModel(s) for s in sample_sizes(names)]
+        return models
 
     def dim(self, d) -> float:
         if d is None:
@@ -211,6 +222,13 @@ def _thin_solve(x: E.Expr, solves=frozenset()) -> E.Expr:
     return x
 
 
+def _larger_than(e: E.Expr, limit: int) -> bool:
+    for count, _node in enumerate(E.walk(e)):
+        if count >= limit:
+            return True
+    return False
+
+
 def _unwrap(f: E.Expr) -> E.Expr:
     return f.body if type(f) is E.Named else f
 
@@ -230,13 +248,14 @@ def _distribute(m: E.MatMul, cost: CostModel, free, go) -> E.Expr:
             distributed = sum(model.flops(t, free) for t in terms)
             return distributed + model.size(m.shape) * len(terms) < 0.8 * factored
 
-        from .calltime import sample_sizes, sym_flops  # (calltime builds on this module)
+        from .calltime import sym_flops  # (calltime builds on this module)
 
         names = {n for x in E.walk(m) for d in x.shape if d is not None for n in d.names}
-        if names <= cost.hinted:
+        if names <= cost.hinted or _larger_than(m, 200):
+            # (past a few hundred parts, sampling sizes costs more than the choice can save)
             votes = {cheaper(cost)}
         else:
-            votes = {cheaper(CostModel(s)) for s in sample_sizes(names)}
+            votes = {cheaper(model) for model in cost.sample_models(names)}
         if votes == {True}:
             return go(E.add(*terms))
         if votes == {True, False}:  # the sizes decide: both forms, chosen at call time

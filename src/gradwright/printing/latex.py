@@ -5,7 +5,9 @@ from __future__ import annotations
 import re
 
 from .. import expr as E
+from ..entrywise import EXTRA_ENTRYWISE
 from . import precedence as P
+from .axis_printing import LatexAxisMixin
 from .base import Printer, fraction_parts, join_terms, number_text, split_numerator
 
 #: between the factors of a product, so that `days S` or `dS S` never read as one word
@@ -75,7 +77,7 @@ def dim_latex(d) -> str:
     return r" \cdot ".join(str(d).split("*"))
 
 
-class LatexPrinter(Printer):
+class LatexPrinter(LatexAxisMixin, Printer):
     default_settings = {
         "dim_subscripts": False,  # I_n, 1_n rather than I, 1
     }
@@ -226,6 +228,8 @@ class LatexPrinter(Printer):
     # --- functions -----------------------------------------------------------------------------
 
     def _print_Func(self, e):
+        if e.name in EXTRA_ENTRYWISE:
+            return self.extra_func(e)
         if e.name == "sqrt":
             return rf"\sqrt{{{self._print(e.arg)}}}"
         return self.call(FUNC_LATEX[e.name], e.arg)
@@ -256,6 +260,9 @@ class LatexPrinter(Printer):
 
     def _print_Diagm(self, e):
         return self.call(r"\operatorname{Diag}", e.args[0])
+
+    def _print_Tril(self, e):
+        return self.call(r"\operatorname{tril}", e.args[0])
 
     def _print_Sum(self, e):
         a = e.args[0]

@@ -23,6 +23,8 @@ _TEXT_NAMES = {
     M.Eigvalsh: "eigvalsh",
     M.EigvalshJvp: "eigvalsh_jvp",
     M.EigvalshVjp: "eigvalsh_vjp",
+    M.EigvalshVjpJvp: "eigvalsh_vjp_jvp",
+    M.TrilHalf: "tril_half",
     M.Cholesky: "cholesky",
     M.CholeskyJvp: "cholesky_jvp",
     M.CholeskyVjp: "cholesky_vjp",
@@ -79,6 +81,18 @@ def _latex_eigvalsh_vjp(self, e):
     s, g = e.args
     u = _basis(self, s)
     return rf"{u} \operatorname{{Diag}}\left({self._print(g)}\right) {u}^{{\top}}"
+
+
+def _latex_eigvalsh_vjp_jvp(self, e):
+    s, g, d = e.args
+    u = _basis(self, s)
+    g1 = rf"\left({self._print(g)}\right)^{{[1]}}"
+    inner = rf"{u}^{{\top}} {self.paren(d, P.PRODUCT + 1)} {u}"
+    return rf"{u} \left({g1} \circ \left({inner}\right)\right) {u}^{{\top}}"
+
+
+def _latex_tril_half(self, e):
+    return rf"\Phi\left({self._print(e.args[0])}\right)"
 
 
 def _latex_cholesky(self, e):
@@ -148,13 +162,15 @@ M.MatrixFunction.latex_precedence = property(
 )
 
 # the forms written as products (U ... Uᵀ, L Φ(...)) take parentheses before a superscript
-for _cls in (M.EigvalshVjp, M.CholeskyJvp, M.SpectralFrechet):
+for _cls in (M.EigvalshVjp, M.EigvalshVjpJvp, M.CholeskyJvp, M.SpectralFrechet):
     _cls.latex_precedence = P.PRODUCT
 
 for _cls, _fn in {
     M.Eigvalsh: _latex_eigvalsh,
     M.EigvalshJvp: _latex_eigvalsh_jvp,
     M.EigvalshVjp: _latex_eigvalsh_vjp,
+    M.EigvalshVjpJvp: _latex_eigvalsh_vjp_jvp,
+    M.TrilHalf: _latex_tril_half,
     M.Cholesky: _latex_cholesky,
     M.CholeskyJvp: _latex_cholesky_jvp,
     M.CholeskyVjp: _latex_cholesky_vjp,
@@ -200,6 +216,8 @@ for _cls, _method in {
     M.Eigvalsh: _code_helper("_gw_eigvalsh", label=True),
     M.EigvalshJvp: _code_helper("_gw_eigvalsh_jvp", label=True),
     M.EigvalshVjp: _code_helper("_gw_eigvalsh_vjp", label=True),
+    M.EigvalshVjpJvp: _code_helper("_gw_eigvalsh_vjp_jvp", label=True),
+    M.TrilHalf: _code_helper("_gw_tril_half"),
     M.Cholesky: _code_helper("_gw_cholesky", label=True),
     M.CholeskyJvp: _code_helper("_gw_cholesky_jvp"),
     M.CholeskyVjp: _code_helper("_gw_cholesky_vjp"),

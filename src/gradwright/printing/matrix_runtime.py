@@ -67,6 +67,29 @@ def _gw_eigvalsh_vjp(a, g, label):
             break
     return (u * g) @ u.T
 """,
+    "_gw_eigvalsh_vjp_jvp": """
+def _gw_eigvalsh_vjp_jvp(a, g, e, label):
+    \"\"\"U (g^[1] o (U^T E U)) U^T, g^[1]_ij = (g_i - g_j)/(lambda_i - lambda_j): the derivative
+    of U Diag(g) U^T along E for fixed g (from dU = U (Omega o (U^T E U)), Magnus 1985).\"\"\"
+    w, u = _gw_eigh(a, label, "eigvalsh")
+    dg = g[:, None] - g[None, :]
+    dw = w[:, None] - w[None, :]
+    tol = 1.5e-8 * max(1.0, np.max(np.abs(w), initial=0.0))
+    close = np.abs(dw) <= tol
+    if np.any(close & (np.abs(dg) > 1e-6 * max(1.0, np.max(np.abs(g), initial=0.0)))):
+        warnings.warn(
+            f"eigenvalues of {label} are numerically repeated and the target weighs them "
+            "differently: its second derivative does not exist there",
+            RuntimeWarning,
+            stacklevel=3,
+        )
+    g1 = np.where(close, 0.0, dg / np.where(close, 1.0, dw))
+    return u @ (g1 * (u.T @ (0.5 * (e + e.T)) @ u)) @ u.T
+""",
+    "_gw_tril_half": """
+def _gw_tril_half(x):
+    return np.tril(x, -1) + 0.5 * np.diag(np.diagonal(x))
+""",
     "_gw_cholesky": """
 def _gw_cholesky(a, label):
     try:
@@ -195,6 +218,7 @@ DEPENDS = {
     "_gw_eigvalsh": ("_gw_symmetric",),
     "_gw_eigvalsh_jvp": ("_gw_eigh", "_gw_symmetric"),
     "_gw_eigvalsh_vjp": ("_gw_eigh", "_gw_symmetric"),
+    "_gw_eigvalsh_vjp_jvp": ("_gw_eigh", "_gw_symmetric"),
     "_gw_cholesky": ("_gw_symmetric",),
     "_gw_matrix_function": ("_gw_eigh", "_gw_symmetric"),
     "_gw_spectral_frechet": ("_gw_eigh", "_gw_symmetric"),

@@ -11,7 +11,9 @@ import keyword
 from dataclasses import dataclass, field
 
 from .. import expr as E
+from ..entrywise import EXTRA_ENTRYWISE
 from . import precedence as P
+from .axis_printing import AXIS_HELPERS, NumpyAxisMixin
 from .base import split_numerator
 from .calltime import (
     CallTimeChoice,
@@ -32,12 +34,15 @@ from .runtime import FUNC_CODE, HELPERS  # noqa: F401
 from .structure import known_spd
 from .text import TextPrinter
 
+HELPERS.update(AXIS_HELPERS)
+HELPERS.update(spec.helper for spec in EXTRA_ENTRYWISE.values() if spec.helper is not None)
+
 # ---------------------------------------------------------------------------------------------
 # printing with temporaries
 # ---------------------------------------------------------------------------------------------
 
 
-class NumpyPrinter(TextPrinter):
+class NumpyPrinter(NumpyAxisMixin, TextPrinter):
     names = {
         "trace": "np.trace", "det": "np.linalg.det", "kron": "np.kron", "sum": "np.sum",
         "norm": "np.linalg.norm", "outer": "np.outer", "eye": "np.eye", "ones": "np.ones",
@@ -237,6 +242,8 @@ class NumpyPrinter(TextPrinter):
         return f"{self.wrap(self._print(a))}**{self.wrap(self._print(k))}"
 
     def _print_Func(self, e):
+        if e.name in EXTRA_ENTRYWISE:
+            return self.extra_func(e)
         code = FUNC_CODE[e.name]
         if e.name == "sigmoid":
             self.use("_gw_sigmoid")
@@ -341,6 +348,9 @@ class NumpyPrinter(TextPrinter):
 
     def _print_Diagm(self, e):
         return f"np.diag({self._print(e.args[0])})"
+
+    def _print_Tril(self, e):
+        return f"np.tril({self._print(e.args[0])})"
 
     def _print_Kron(self, e):
         a, b = e.args

@@ -146,6 +146,7 @@ def _gw_check(specs):
     dtype = ns.result_type(*floats) if floats else ns.float64
     xp = _GwXp(library, ns, native, dtype, device)
     dims, owner, out, products = _GwDims(), {}, [], []
+    dims.dtype = dtype  # the dtype of constants the code builds (eye, ones, zeros)
     for a, (name, _v, spec) in zip(arrays, specs):
         if _gw_library(a) != library:  # a number or a list of integers
             a = ns.asarray(a, dtype=dtype if a.dtype.kind != "c" else None, **where)
@@ -264,6 +265,8 @@ class _GwXp:
         return None  # PyTorch and Dask have no such module: the operation is not available
 
     def unavailable(self, operation):
+        if operation.startswith("gw_"):  # a NumPy helper of the generated code
+            operation = operation[3:]
         raise NotImplementedError(
             f"{operation} is not available for {self.library} arrays in gradwright's generated "
             "code; pass NumPy arrays for this formula"
@@ -288,10 +291,11 @@ class _GwXp:
 
     # --- construction -----------------------------------------------------------------------
 
-    def _make(self, fn, *args):
+    def _make(self, fn, *args, dtype=None):
+        dtype = self.dtype if dtype is None else dtype
         if self.library == "dask":
-            return fn(*args, dtype=self.dtype)
-        return fn(*args, dtype=self.dtype, device=self.device)
+            return fn(*args, dtype=dtype)
+        return fn(*args, dtype=dtype, device=self.device)
 
     def asarray(self, a, dtype=None):
         if _gw_library(a) == self.library:
@@ -309,14 +313,14 @@ class _GwXp:
     def _arr(self, a):
         return a if _gw_library(a) == self.library else self.asarray(a, dtype=self.dtype)
 
-    def eye(self, n):
-        return self._make(self.ns.eye, n)
+    def eye(self, n, dtype=None):
+        return self._make(self.ns.eye, n, dtype=dtype)
 
-    def ones(self, shape):
-        return self._make(self.ns.ones, shape)
+    def ones(self, shape, dtype=None):
+        return self._make(self.ns.ones, shape, dtype=dtype)
 
-    def zeros(self, shape):
-        return self._make(self.ns.zeros, shape)
+    def zeros(self, shape, dtype=None):
+        return self._make(self.ns.zeros, shape, dtype=dtype)
 
     # --- shapes -------------------------------------------------------------------------------
 
@@ -582,7 +586,75 @@ class _GwXp:
         z = self.ns.exp(x - self.ns.max(x))
         return z / self.ns.sum(z)
 
-    def gw_commutation(self, m, n):
+    def gw_cho_solve(self, factor, b):
+        return self.cho_solve(factor, b)
+
+    # --- spectral functions and factorizations of symmetric matrices (PyTorch, JAX, CuPy) ----
+    # the same formulas as the NumPy helpers; expm, sqrtm, logm and the matrix equations have
+    # no counterpart here and are refused by name
+
+    def _no_dask(self, operation):
+        if self.library == "dask":
+            self.unavailable(operation)
+
+    def gw_matrix_function(self, name, *args):
+        self.unavailable(name)
+
+    def gw_spectral_frechet(self, name, *args):
+        self.unavailable(f"the derivative of {name}")
+
+    def gw_symmetric(self, a, label, what):
+        if self.concrete(a) and math.prod(a.shape):
+            ns = self.ns
+            scale = max(1.0, float(ns.max(ns.abs(a))))
+            if float(ns.max(ns.abs(a - a.T))) > 1e-8 * scale:
+                raise ValueError(f"{label} is not symmetric, but {what} needs a symmetric matrix")
+        return a
+
+    def gw_eigh(self, a, label, what):
+        self._no_dask(what)
+        w, u = self.ns.linalg.eigh(self.gw_symmetric(a, label, what))
+        return w, u
+
+    def gw_eigvalsh(self, a, label):
+        self._no_dask("eigvalsh")
+        return self.ns.linalg.eigvalsh(self.gw_symmetric(a, label, "eigvalsh"))
+
+    def gw_eigvalsh_jvp(self, a, e, label):
+        """d eigvalsh(S)[i] = u_i^T dS u_i (Magnus 1985), for simple eigenvalues."""
+        _w, u = self.gw_eigh(a, label, "eigvalsh")
+        return self.ns.sum(u * ((0.5 * (e + e.T)) @ u), axis=0)
+
+    def gw_eigvalsh_vjp(self, a, g, label):
+        """U Diag(g) U^T: the gradient of a function of eigvalsh(S) with weights g."""
+        _w, u = self.gw_eigh(a, label, "eigvalsh")
+        return (u * g) @ u.T
+
+    def gw_cholesky(self, a, label):
+        self._no_dask("cholesky")
+        low = self.cholesky(self.gw_symmetric(a, label, "cholesky"))
+        if self.concrete(low) and not bool(self.ns.all(self.ns.isfinite(low))):
+            raise ValueError(f"{label} is not positive definite: cholesky needs an spd matrix")
+        return low
+
+    def _phi(self, p):
+        """The lower triangle with half the diagonal."""
+        return self.ns.tril(p, k=-1) + 0.5 * self.diag(self.diagonal(p))
+
+    def gw_cholesky_jvp(self, low, e):
+        """dL = L Phi(L^-1 dS L^-T) (Murray 2016); triangular solves as general solves."""
+        es = 0.5 * (e + e.T)
+        p = self.solve(low, self.solve(low, es).T)
+        return low @ self._phi(p)
+
+    def gw_cholesky_vjp(self, low, g):
+        """sym(L^-T Phi(L^T G) L^-1): the reverse mode of the Cholesky factor (Murray 2016)."""
+        p = self._phi(low.T @ g)
+        y = self.solve(low.T, p)
+        m = self.solve(low.T, y.T).T
+        return 0.5 * (m + m.T)
+
+    def gw_commutation(self, m, n, dtype=None):
         import numpy
 
         k = numpy.zeros((m * n, m * n))
