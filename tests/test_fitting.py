@@ -46,6 +46,7 @@ def test_block_hessian_objective_and_products_match_jax(seed):
     assert_close(obj.hessp(flat, p, a["X"], a["Y"]), hess @ p, 1e-10, "Hessian-vector product")
     assert_close(d.hessian_function()(**a), hess, 1e-10, "hessian_function()")
     assert_close(d.hessian_function("W", "b")(**a), hess, 1e-10, "hessian_function(W, b)")
+    assert_close(d.hessian_function(["W", "b"])(**a), hess, 1e-10, "a list of variables")
     assert_close(d.hvp_function()(p, **a), hess @ p, 1e-10, "hvp_function()")
 
 
