@@ -57,6 +57,11 @@ EXAMPLES = {
     E.SizeOf: E.SizeOf(n),
     E.Pi: E.Pi(),
     E.Index: E.Index(B, ("slice", 1, 3), ("at", -1)),
+    # reductions over an axis, softmax over an axis, maximum/minimum (expr_axis.py)
+    E.AxisReduce: E.AxisReduce("logsumexp", B, 1, True),
+    E.TieWeights: E.TieWeights("max", B, 0),
+    E.AxisSoftmax: E.AxisSoftmax("log_softmax", B, 1),
+    E.Extremum: E.Extremum("maximum", B, s),
 }
 
 # the spectral, factorization and matrix-equation family (gradwright.matrix_functions)
@@ -66,12 +71,15 @@ EXAMPLES.update(
         M.Eigvalsh: M.Eigvalsh(S),
         M.EigvalshJvp: M.EigvalshJvp(S, E.Differential(S)),
         M.EigvalshVjp: M.EigvalshVjp(S, x),
+        M.EigvalshVjpJvp: M.EigvalshVjpJvp(S, x, E.Differential(S)),
+        M.TrilHalf: M.TrilHalf(A),
         M.Cholesky: M.Cholesky(S),
         M.CholeskyJvp: M.CholeskyJvp(M.Cholesky(S), E.Differential(S)),
         M.CholeskyVjp: M.CholeskyVjp(M.Cholesky(S), A),
         M.MatrixFunction: M.MatrixFunction("expm", A),
         M.SpectralFrechet: M.SpectralFrechet("logm", S, A),
         M.ExpmFrechet: M.ExpmFrechet(A, E.Differential(A)),
+        M.LogmFrechet: M.LogmFrechet(A, E.Differential(A)),
         M.SolveSylvester: M.SolveSylvester(A, A, A),
         M.SolveContinuousLyapunov: M.SolveContinuousLyapunov(A, S),
         M.SolveDiscreteLyapunov: M.SolveDiscreteLyapunov(A, S),
@@ -85,6 +93,7 @@ NOT_LINEAR = {
     E.Symbol, E.Const, E.Identity, E.Ones, E.Zero, E.Commutation, E.Power, E.Func, E.Det,
     E.LogDet, E.Inverse, E.Norm, E.LogSumExp, E.Softmax, E.MatPow, E.Named, E.D,
     M.Eigvalsh, M.Cholesky, M.MatrixFunction,
+    E.AxisReduce, E.TieWeights, E.AxisSoftmax, E.Extremum,
 }  # fmt: skip
 NOT_LINEAR |= {E.SizeOf, E.Pi}  # numbers of the language: constants
 #: classes the code generator never prints (pending differentials exist only in displayed steps)

@@ -12,6 +12,7 @@ from collections.abc import Iterable
 from dataclasses import dataclass
 from fractions import Fraction
 
+from .entrywise import EXTRA_ENTRYWISE
 from .errors import ShapeError
 
 # ---------------------------------------------------------------------------------------------
@@ -431,7 +432,9 @@ class Power(Expr):
         return self.args[0].shape
 
 
-ELEMENTWISE = ("exp", "log", "sqrt", "sin", "cos", "tanh", "sigmoid", "softplus")
+ELEMENTWISE = ("exp", "log", "sqrt", "sin", "cos", "tanh", "sigmoid", "softplus") + tuple(
+    EXTRA_ENTRYWISE
+)
 
 
 class Func(Expr):
@@ -902,7 +905,6 @@ def mul(*factors: Expr) -> Expr:
     coef = Fraction(1)
     bases: dict = {}
     order: list = []
-    ones = False
     for f in flat:
         if type(f) is Const:
             coef *= f.value
@@ -910,7 +912,6 @@ def mul(*factors: Expr) -> Expr:
         if type(f) is Zero:
             return zero_like(shape)
         if type(f) is Ones:
-            ones = True
             continue
         if type(f) is Power and type(f.args[1]) is Const:
             base, k = f.args[0], f.args[1].value
@@ -931,7 +932,8 @@ def mul(*factors: Expr) -> Expr:
         out.append(base if k == 1 else power(base, Const(k)))
     scalars = sorted((f for f in out if f.is_scalar), key=_factor_order)
     arrays = sorted((f for f in out if not f.is_scalar), key=_factor_order)
-    if ones and not arrays and not is_scalar_shape(shape):
+    if not arrays and not is_scalar_shape(shape):
+        # array factors that cancelled (s * s**-1) still leave an array: the scalars broadcast
         arrays = [Ones(shape)]
     parts = ([Const(coef)] if coef != 1 else []) + scalars + arrays
     if not parts:
@@ -983,6 +985,9 @@ def matmul(*factors: Expr) -> Expr:
         if reduced and _cancels(reduced[-1], f):
             reduced.pop()
             continue
+        if reduced and type(f) is Ones and type(reduced[-1]) is Ones and f.shape[0] in _UNIT:
+            reduced[-1] = Ones((reduced[-1].shape[0], f.shape[1]))  # 1 1ᵀ of ones is ones
+            continue
         if reduced and type(f) is Solve and reduced[-1] == f.args[0]:
             reduced.pop()
             f = f.args[1]
@@ -994,6 +999,9 @@ def matmul(*factors: Expr) -> Expr:
     else:
         core = MatMul(*reduced)
     return mul(*scalars, core) if scalars else core
+
+
+_UNIT = (None, Dim((), 1))
 
 
 def _cancels(a: Expr, b: Expr) -> bool:
@@ -1367,3 +1375,9 @@ def expanded_size(e: Expr, limit: int) -> int:
 from .matrix_functions import NODES as _MATRIX_NODES  # noqa: E402
 
 NODE_CLASSES = NODE_CLASSES + _MATRIX_NODES
+
+# reductions over an axis, row-wise softmax and maximum/minimum live in their own module; they
+# are built from the constructors above, so they are imported last
+from .expr_axis import AXIS_NODES, AxisReduce, AxisSoftmax, Extremum, TieWeights  # noqa: E402, F401
+
+NODE_CLASSES = NODE_CLASSES + AXIS_NODES
