@@ -750,3 +750,66 @@ class _GwXp:
             return self.einsum("ikjl,kl->ij", self.reshape(g, (rows, p, cols, q)), other)
         m, n = other.shape
         return self.einsum("ikjl,ij->kl", self.reshape(g, (m, rows, n, cols)), other)
+
+    # --- reductions over an axis and special functions (language/calls_reductions.py, ...) ---
+    # the same max-shifted formulas as the NumPy helpers in printing/axis_printing.py
+
+    def gw_logsumexp_axis(self, a, axis, keepdims):
+        ns = self.ns
+        m = ns.max(a, axis=axis, keepdims=True)
+        m = ns.where(ns.isfinite(m), m, ns.zeros_like(m))
+        out = m + ns.log(ns.sum(ns.exp(a - m), axis=axis, keepdims=True))
+        if keepdims:
+            return out
+        return ns.reshape(out, ()) if axis is None else ns.squeeze(out, axis=axis)
+
+    def gw_softmax_axis(self, a, axis):
+        ns = self.ns
+        z = ns.exp(a - ns.max(a, axis=axis, keepdims=True))
+        return z / ns.sum(z, axis=axis, keepdims=True)
+
+    def gw_log_softmax_axis(self, a, axis):
+        ns = self.ns
+        shifted = a - ns.max(a, axis=axis, keepdims=True)
+        return shifted - ns.log(ns.sum(ns.exp(shifted), axis=axis, keepdims=True))
+
+    def gw_tie_weights(self, a, axis, op):
+        ns = self.ns
+        best = (ns.max if op == "max" else ns.min)(a, axis=axis, keepdims=True)
+        hits = ns.astype(a == best, a.dtype)
+        return hits / ns.sum(hits, axis=axis, keepdims=True)
+
+    def _special(self, name, x, *order):
+        """scipy.special's function in the arguments' library (torch.special, jax.scipy)."""
+        if self.library == "numpy":
+            import scipy.special as place
+        elif self.library == "torch":
+            import torch.special as place
+        elif self.library == "jax":
+            import jax.scipy.special as place
+        elif self.library == "cupy":
+            import cupyx.scipy.special as place
+        else:
+            self.unavailable(name)
+        fn = getattr(place, name, None)
+        if fn is None:
+            self.unavailable(name)
+        return fn(*order, x)
+
+    def gw_erf(self, x):
+        return self._special("erf", x)
+
+    def gw_gammaln(self, x):
+        return self._special("gammaln", x)
+
+    def gw_digamma(self, x):
+        return self._special("digamma", x)
+
+    def gw_trigamma(self, x):
+        return self._special("polygamma", x, 1)
+
+    def gw_tetragamma(self, x):
+        return self._special("polygamma", x, 2)
+
+    def gw_pentagamma(self, x):
+        return self._special("polygamma", x, 3)
