@@ -593,60 +593,8 @@ class _GwXp:
             raise ValueError(f"{label} is not positive definite ({why})")
         return (low, True, a)
 
-    # --- reductions along an axis and special functions ---------------------------------------
-
-    def gw_logsumexp_axis(self, a, axis, keepdims):
-        ns = self.ns
-        m = ns.max(a, axis=axis, keepdims=True)
-        m = ns.where(ns.isfinite(m), m, ns.zeros_like(m))
-        out = m + ns.log(ns.sum(ns.exp(a - m), axis=axis, keepdims=True))
-        return out if keepdims else ns.squeeze(out, axis=axis)
-
-    def gw_softmax_axis(self, a, axis):
-        ns = self.ns
-        z = ns.exp(a - ns.max(a, axis=axis, keepdims=True))
-        return z / ns.sum(z, axis=axis, keepdims=True)
-
-    def gw_log_softmax_axis(self, a, axis):
-        ns = self.ns
-        shifted = a - ns.max(a, axis=axis, keepdims=True)
-        return shifted - ns.log(ns.sum(ns.exp(shifted), axis=axis, keepdims=True))
-
     def gw_tril_half(self, x):
         return self._phi(x)
-
-    def _special(self, name, *args):
-        """SciPy's special functions from the library's own module, or refused by name."""
-        place = None
-        if self.library == "torch":
-            place = self.native.special
-        elif self.library == "jax":
-            import jax.scipy.special
-
-            place = jax.scipy.special
-        elif self.library == "cupy":
-            import cupyx.scipy.special
-
-            place = cupyx.scipy.special
-        elif self.library == "numpy":
-            import scipy.special
-
-            place = scipy.special
-        if place is None or not hasattr(place, name):
-            self.unavailable(name)
-        return getattr(place, name)(*args)
-
-    def gw_erf(self, x):
-        return self._special("erf", x)
-
-    def gw_gammaln(self, x):
-        return self._special("gammaln", x)
-
-    def gw_digamma(self, x):
-        return self._special("digamma", x)
-
-    def gw_trigamma(self, x):
-        return self._special("polygamma", 1, x)
 
     def gw_adjugate(self, a):
         """adj(A) = det(A) inv(A); where A is singular only NumPy's SVD path defines it here."""
