@@ -74,7 +74,7 @@ def test_missing_and_extra_arguments_are_named(factor):
         f(**{k: v for k, v in a.items() if k != "V"})
     with pytest.raises(TypeError, match="unexpected keyword argument 'Q'"):
         f(**a, Q=np.ones(2))
-    with pytest.raises(TypeError, match="by position: pass arrays by keyword"):
+    with pytest.raises(TypeError, match="positional arguments: pass arrays by keyword"):
         f(a["P"], a["U"], a["V"], a["mu"])
     with pytest.raises(TypeError, match="missing .*'U'"):
         d.gradient_function("U")(P=a["P"], V=a["V"], mu=a["mu"])
