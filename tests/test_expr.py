@@ -52,6 +52,12 @@ EXAMPLES = {
     E.Named: E.Named("R", B),
     E.D: E.D(B),
     E.KronContract: E.KronContract(E.Kron(A, B), B, n, n, "left"),
+    # complex arithmetic (gradwright.complex_nodes)
+    E.Conj: E.Conj(E.Symbol("Z", (n, k), frozenset({"complex"}))),
+    E.Real: E.Real(E.Symbol("Z", (n, k), frozenset({"complex"}))),
+    E.Imag: E.Imag(E.Symbol("Z", (n, k), frozenset({"complex"}))),
+    E.Abs: E.Abs(B),
+    E.ImagUnit: E.ImagUnit(),
 }
 
 #: classes that never occur inside a differential (or are its leaves, handled by the driver),
@@ -60,6 +66,8 @@ NOT_LINEAR = {
     E.Differential,
     E.Symbol, E.Const, E.Identity, E.Ones, E.Zero, E.Commutation, E.Power, E.Func, E.Det,
     E.LogDet, E.Inverse, E.Norm, E.LogSumExp, E.Softmax, E.MatPow, E.Named, E.D,
+    # conj(dZ) is a leaf of its own in the Wirtinger read-off; the others expand by their rules
+    E.Conj, E.Real, E.Imag, E.Abs, E.ImagUnit,
 }  # fmt: skip
 #: classes the code generator never prints (pending differentials exist only in displayed steps)
 NOT_CODE = {E.D}

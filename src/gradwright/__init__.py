@@ -92,6 +92,10 @@ def derive(text: str, wrt, *, shapes: dict | None = None, sizes: dict | None = N
                 raise FormulaError(f"sizes[{k!r}] must be a positive integer, got {v!r}")
             checked[k] = int(v)
         sizes = checked
+    from .complex_derivation import ComplexDerivation, is_complex_block
+
+    if is_complex_block(block):
+        return ComplexDerivation(block, tuple(seen), sizes)
     return Derivation(block, tuple(seen), sizes)
 
 

@@ -221,6 +221,21 @@ class _Evaluator:
         m, n = B.shape
         return np.einsum("ikjl,ij->kl", G.reshape(m, p, n, q), B)
 
+    def _Conj(self, e):
+        return np.conj(self.ev(e.args[0]))
+
+    def _Real(self, e):
+        return np.real(self.ev(e.args[0]))
+
+    def _Imag(self, e):
+        return np.imag(self.ev(e.args[0]))
+
+    def _Abs(self, e):
+        return np.abs(self.ev(e.args[0]))
+
+    def _ImagUnit(self, e):
+        return np.array([[1j]])
+
     def _D(self, e):
         # directional derivative along the given differentials, 4th-order central difference
         inner = e.args[0]

@@ -1224,3 +1224,9 @@ def expanded_size(e: Expr, limit: int) -> int:
         stack.append((x, True))
         stack.extend((c, False) for c in x.children if id(c) not in memo)
     return memo[id(e)]
+
+
+# the nodes of complex arithmetic live in their own module; they are nodes like any other
+from .complex_nodes import COMPLEX_NODE_CLASSES, Abs, Conj, Imag, ImagUnit, Real  # noqa: E402, F401
+
+NODE_CLASSES = NODE_CLASSES + COMPLEX_NODE_CLASSES

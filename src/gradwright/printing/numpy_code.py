@@ -12,6 +12,7 @@ from dataclasses import dataclass, field
 from types import SimpleNamespace
 
 from .. import expr as E
+from ..complex_nodes import COMPLEX_WORDS
 from . import precedence as P
 from .base import split_numerator
 from .text import TextPrinter
@@ -39,7 +40,7 @@ _GW_COMPLEX_STEP = []
 def _gw_check(specs):
     """Validate the arguments; returns the arrays and the dims they bind."""
     dims, owner, out, products = _GwDims(), {}, [], []
-    for name, value, spec in specs:
+    for name, value, spec, *field in specs:
         if isinstance(value, (str, bytes)) or value is None:
             raise TypeError(f"{name} must be a numeric array, got {type(value).__name__}")
         try:
@@ -51,7 +52,7 @@ def _gw_check(specs):
         if a.dtype.kind not in "biufc":
             got = f"dtype {a.dtype}" if isinstance(value, np.ndarray) else type(value).__name__
             raise TypeError(f"{name} must be a numeric array, got {got}")
-        if a.dtype.kind == "c" and not _GW_COMPLEX_STEP:
+        if a.dtype.kind == "c" and not _GW_COMPLEX_STEP and not field:
             if " " in name:  # a direction or cotangent, not a declared symbol
                 raise TypeError(
                     f"{name} is a complex array, but the block is real: pass a real array"
@@ -709,6 +710,18 @@ class NumpyPrinter(TextPrinter):
     def _print_MatPow(self, e):
         return f"np.linalg.matrix_power({self._print(e.args[0])}, {e.args[1]})"
 
+    def _print_Conj(self, e):
+        return f"np.conj({self._print(e.args[0])})"
+
+    def _print_Real(self, e):
+        return f"np.real({self._print(e.args[0])})"
+
+    def _print_Imag(self, e):
+        return f"np.imag({self._print(e.args[0])})"
+
+    def _print_Abs(self, e):
+        return f"np.abs({self._print(e.args[0])})"
+
     def _print_D(self, e):  # pragma: no cover
         raise AssertionError("pending differentials are never printed as code")
 
@@ -767,6 +780,8 @@ class CodeGen:
         self.directions: dict = {}
         self.lines: list[str] = []
         self.cholesky: dict = {}
+        #: complex blocks: directions and cotangents may be complex arrays
+        self.complex_directions = False
 
     def arg_name(self, name: str) -> str:
         if keyword.iskeyword(name) or name.startswith("_"):  # pragma: no cover - parser refuses
@@ -801,10 +816,16 @@ class CodeGen:
 
     def check_lines(self, direction) -> list[str]:
         names = list(self.required)
-        specs = [f"({n!r}, {n}, {self.spec_of(self.symbols[n].shape)})" for n in names]
+        specs = [
+            f"({n!r}, {n}, {self.spec_of(self.symbols[n].shape)}{_field(self.symbols[n])})"
+            for n in names
+        ]
         if direction is not None:
             pname, _sym, shape = direction
-            specs.append(f"({_direction_label(direction)!r}, {pname}, {self.spec_of(shape)})")
+            marker = ', "complex"' if self.complex_directions else ""
+            specs.append(
+                f"({_direction_label(direction)!r}, {pname}, {self.spec_of(shape)}{marker})"
+            )
             names.append(pname)
         if not specs:
             return ["    _dims = {}"]
@@ -868,6 +889,11 @@ class CodeGen:
         body.append(f"    return {spec.returns}")
         self.directions = {}
         return "\n".join(body)
+
+
+def _field(sym) -> str:
+    """The marker that lets a complex-declared symbol take complex arrays."""
+    return ', "complex"' if sym.structure & COMPLEX_WORDS else ""
 
 
 def _direction_label(direction) -> str:
