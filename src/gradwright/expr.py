@@ -187,7 +187,23 @@ class Expr:
         return self._key
 
     def __repr__(self):
-        return self.key()
+        """The formula in the formula language, e.g. `2 * (X.T @ (X @ W - Y))`."""
+        return self._printed("text", self.key)
+
+    def __str__(self) -> str:
+        return self.__repr__()
+
+    def _repr_latex_(self) -> str:
+        """The formula as math in a notebook."""
+        return "$\\displaystyle " + self._printed("latex", lambda: r"\text{(not printable)}") + "$"
+
+    def _printed(self, kind: str, fallback) -> str:
+        from .printing import latex, text  # the printers import this module
+
+        try:
+            return (text if kind == "text" else latex)(self)
+        except Exception:  # a node without a printer yet: its key still identifies it
+            return fallback()
 
     @property
     def symbols(self) -> frozenset[str]:

@@ -25,6 +25,8 @@ ALLOWED_EXEC = {
     ("calculus/stationary.py", "compile"),
     ("notebook/export.py", "exec"),
     ("notebook/export.py", "compile"),
+    # the function families: module names from the package's own directory, never user text
+    ("language/parser.py", "import_module"),
 }
 DANGEROUS_CALLS = {"eval", "exec", "compile", "__import__", "execfile", "import_module"}
 
@@ -128,6 +130,8 @@ def test_generated_source_uses_only_known_identifiers(block, wrt):
         if isinstance(stmt, (ast.Import, ast.ImportFrom)):
             assert ast.unparse(stmt) in IMPORTS
             continue
+        if isinstance(stmt, ast.Assign) and ast.dump(stmt) in helper_text:
+            continue  # a helper's own module-level state, verbatim from HELPERS
         if isinstance(stmt, ast.Assign):  # a table of the generated functions, by name
             (target,) = stmt.targets
             assert isinstance(target, ast.Name) and target.id.startswith("_gw_")

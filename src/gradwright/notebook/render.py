@@ -226,7 +226,7 @@ def shape_rows(derivation) -> list[dict]:
                 {
                     "symbol": f"gradient of {target} wrt {var}",
                     "shape": _shape_text(info.shape),
-                    "structure": " ".join(info.structure),
+                    "structure": _gradient_structure(info.structure),
                     "role": "result",
                 }
             )
@@ -242,6 +242,18 @@ def shape_rows(derivation) -> list[dict]:
                 }
             )
     return rows
+
+
+def _gradient_structure(words) -> str:
+    """What the gradient keeps of its variable's structure: the gradient lives in the tangent
+    space (symmetric or diagonal matrices), it is not itself positive definite, positive or
+    orthogonal."""
+    words = set(words)
+    if "diagonal" in words:
+        return "diagonal"
+    if words & {"symmetric", "spd"}:
+        return "symmetric"
+    return ""
 
 
 def shape_table_bundle(derivation) -> dict:

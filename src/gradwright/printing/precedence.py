@@ -48,6 +48,8 @@ def latex_precedence(e: E.Expr) -> int:
         return POSTFIX
     if t in (E.Sum, E.Trace) and type(e.args[0]) in (E.Ones, E.Identity):
         shape = e.args[0].shape
+        if t is E.Trace:  # tr(I_n) is n: only the rows count
+            shape = shape[:1]
         named = [d for d in shape if d is not None]
         return (
             PRODUCT
