@@ -225,21 +225,20 @@ class ComplexDerivation(Derivation):
         if not self.target_is_real:
             return steps
         form = E.add(*(_re_pairing(self._gradient(v), self._vars[v]) for v in self.variables))
-        steps.append(
-            Step(
-                "differential",
-                form,
-                "f is real, so B = conj(A): df = 2 Re tr(Bᵀ conj(dZ)) = Re tr(Gᴴ dZ), G = 2B",
-                lhs,
-            )
-        )
+        why = "f is real, so B = conj(A): df = 2 Re tr(Bᵀ conj(dZ)) = Re tr(Gᴴ dZ), G = 2B"
+        if any(is_hermitian_symbol(self._vars[v]) for v in self.variables):
+            why += "; for a Hermitian Z, dZ is Hermitian and G the Hermitian part of conj(A)"
+        steps.append(Step("differential", form, why, lhs))
         for v in self.variables:
             sym = self._vars[v]
             if not is_complex_symbol(sym):
                 why, head = "read off the gradient (a real variable)", _partial(self.target, v)
             elif is_hermitian_symbol(sym):
-                why = f"Hermitian part, since {v} is Hermitian; {CONVENTION}"
-                head = _grad_head(self.target, v)
+                why = (
+                    f"Hermitian part, since {v} is Hermitian: the G with df = Re tr(Gᴴ d{v}) "
+                    f"for every Hermitian d{v}"
+                )
+                head = rf"\nabla_{{{symbol_latex(v)}}} {symbol_latex(self.target)}"
             else:
                 why = f"read off: {CONVENTION}"
                 head = _grad_head(self.target, v)
@@ -252,7 +251,9 @@ class ComplexDerivation(Derivation):
             if step.kind == "gradient":
                 sym = self._vars[step.var]
                 lhs = (
-                    f"∂{self.target}/∂Re {step.var} + i ∂{self.target}/∂Im {step.var}"
+                    f"∇{step.var} {self.target}"
+                    if is_hermitian_symbol(sym)
+                    else f"∂{self.target}/∂Re {step.var} + i ∂{self.target}/∂Im {step.var}"
                     if is_complex_symbol(sym)
                     else f"∂{self.target}/∂{step.var}"
                 )

@@ -637,7 +637,14 @@ def _name_latex(name: str) -> str:
 
 def _latex_text(words: str) -> str:
     out = words.replace("\\", "")
-    for a, b in (("ᵀ", "^T"), ("⊗", " kron "), ("_", r"\_"), ("&", r"\&"), ("%", r"\%")):
+    for a, b in (
+        ("ᵀ", "^T"),
+        ("ᴴ", "^H"),
+        ("⊗", " kron "),
+        ("_", r"\_"),
+        ("&", r"\&"),
+        ("%", r"\%"),
+    ):
         out = out.replace(a, b)
     return out
 

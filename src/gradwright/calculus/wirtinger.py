@@ -109,10 +109,15 @@ def _canonical_scalar(e: E.Expr) -> str:
     if rest is None:
         return f"{c}"
     keys = [rest.key()]
-    if type(rest) is E.MatMul and rest.is_scalar:
-        keys.append(E.transpose(rest).key())
-    if type(rest) is E.Trace:
-        keys.append(E.trace(E.transpose(rest.args[0])).key())
+    if type(rest) is E.MatMul and rest.is_scalar:  # E.transpose keeps a scalar as it is
+        keys.append(E.matmul(*(E.transpose(f) for f in reversed(rest.args))).key())
+    if type(rest) is E.Trace:  # tr(ABC) = tr(BCA) = tr(CᵀBᵀAᵀ)
+        a = rest.args[0]
+        fs = list(a.args) if type(a) is E.MatMul else [a]
+        for chain in (fs, [E.transpose(f) for f in reversed(fs)]):
+            for k in range(len(chain)):
+                turned = chain[k:] + chain[:k]
+                keys.append(E.Trace(E.matmul(*turned) if len(turned) > 1 else turned[0]).key())
     return f"{c}*{min(keys)}"
 
 

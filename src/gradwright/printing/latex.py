@@ -224,7 +224,7 @@ class LatexPrinter(Printer):
 
     def _print_LogDet(self, e):
         a = e.args[0]
-        if E.is_spd(a):
+        if E.is_spd(a) or (type(a) is E.Symbol and "hpd" in a.structure):
             return self.call(r"\log\det", a)
         return r"\log\left|\det " + self.paren(a, P.ATOM) + r"\right|"
 
