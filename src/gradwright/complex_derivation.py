@@ -44,6 +44,9 @@ class ComplexDerivation(Derivation):
     '-2 * (conj(H).T @ (y - H @ x))'
     """
 
+    #: the check panel reads this: directions real and imaginary, no complex step
+    is_complex = True
+
     def __init__(self, block, wrt, sizes=None):
         super().__init__(block, wrt, sizes)
         W.check_supported(self.expr)

@@ -268,3 +268,29 @@ def test_every_displayed_step_is_the_same_differential():
     for v in values[1:]:
         assert v == pytest.approx(values[0], rel=1e-6, abs=1e-8)
     assert "2 ∂f/∂conj(Z)" in d.steps[-1].rule and "Re tr(Gᴴ dZ)" in d.text_steps()
+
+
+# --- the finite-difference check of the notebook face --------------------------------------------
+
+
+def test_check_runs_along_real_and_imaginary_directions_and_catches_a_conjugate():
+    from gradwright.notebook.fdcheck import COMPLEX_STEP_UNAVAILABLE, run_check
+
+    d = derive("R: (n, n) hpd\n" + CH + "f = norm(y - H @ x)**2 + x.conj() @ R @ x", wrt=["x", "R"])
+    result = run_check(d, ["x", "R"], d.sample_inputs())
+    assert result.error is None and result.passed, result.summary()
+    d = derive("H: (n, n) complex\nz: (n,) complex\nF = H @ z + 2 * conj(z)", wrt="z")
+    result = run_check(d, ["z"], d.sample_inputs())
+    assert result.error is None and result.passed, result.summary()
+    # a gradient off by a conjugate (the classic convention slip) must fail the check
+    d = derive("z: (n,) complex\nf = sum(abs(z - 1j)**2)", wrt="z")
+    namespace = d._namespace()
+    good = namespace["gradient_z"]
+    d._fn = lambda name: (
+        (lambda **a: np.conj(good(**a))) if name == "gradient_z" else namespace[name]
+    )
+    assert not run_check(d, ["z"], d.sample_inputs()).passed
+    assert d.supports_complex_step is False
+    with pytest.raises(ValueError, match="complex step is unavailable"):
+        run_check(d, ["z"], d.sample_inputs(), method="complex step")
+    assert "real and imaginary directions" in COMPLEX_STEP_UNAVAILABLE

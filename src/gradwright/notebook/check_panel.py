@@ -12,6 +12,7 @@ import math
 import numpy as np
 
 from .fdcheck import (
+    COMPLEX_STEP_UNAVAILABLE,
     METHODS,
     CheckResult,
     default_step,
@@ -257,6 +258,8 @@ class CheckPanel:
                     layout=w.Layout(flex_flow="row wrap"),
                 )
             )
+        if getattr(self.derivation, "is_complex", False):
+            rows.append(w.HTML(f"<small>{html.escape(COMPLEX_STEP_UNAVAILABLE)}.</small>"))
         rows += [
             w.HBox([self.variable, self.seed]),
             self.method,
