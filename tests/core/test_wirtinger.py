@@ -294,3 +294,40 @@ def test_check_runs_along_real_and_imaginary_directions_and_catches_a_conjugate(
     with pytest.raises(ValueError, match="complex step is unavailable"):
         run_check(d, ["z"], d.sample_inputs(), method="complex step")
     assert "real and imaginary directions" in COMPLEX_STEP_UNAVAILABLE
+
+
+def test_pytorch_returns_our_gradient_unchanged():
+    """A second reference library: PyTorch's backward of a real loss of a complex leaf gives
+    2 ∂f/∂conj(z), our G (PyTorch documentation, "Autograd for complex numbers"; checked here)."""
+    torch = pytest.importorskip("torch")
+    d = derive(CH + "f = norm(y - H @ x)**2 + sum(abs(x)**4)", wrt="x")
+    arrays = d.sample_inputs(seed=7)
+    t = {k: torch.tensor(v, dtype=torch.complex128) for k, v in arrays.items()}
+    t["x"].requires_grad_(True)
+    loss = torch.sum(torch.abs(t["y"] - t["H"] @ t["x"]) ** 2) + torch.sum(torch.abs(t["x"]) ** 4)
+    loss.backward()
+    want = t["x"].grad.numpy()  # reference library: PyTorch
+    assert np.allclose(d.gradient_function()(**arrays), want, rtol=1e-10, atol=1e-12)
+
+
+def test_optimizer_packing_and_shape_table_fields():
+    from scipy import optimize
+
+    from gradwright.notebook.functions import Packer
+    from gradwright.notebook.render import shape_table_bundle
+
+    d = derive("Y: (a, k) complex\nH: (a, t) complex\nX: (t, k) complex\nloss = norm(Y - H @ X)**2",
+               wrt="H")  # fmt: skip
+    arrays = d.sample_inputs(sizes={"a": 6, "t": 2, "k": 9}, seed=1)
+    packer = Packer.for_derivation(d)
+    x0 = packer.pack(H=np.zeros((6, 2), complex))
+    assert x0.shape == (24,) and np.isrealobj(x0)  # real parts, then imaginary parts
+    objective = packer.objective(d.value_and_gradient_function())
+    constants = {"Y": arrays["Y"], "X": arrays["X"]}
+    result = optimize.minimize(lambda v: objective(v, **constants), x0, jac=True, method="BFGS")
+    fitted = packer.unpack(result.x)
+    # reference: NumPy's least squares on the transposed system Xᵀ Hᵀ = Yᵀ
+    want = np.linalg.lstsq(arrays["X"].T, arrays["Y"].T, rcond=None)[0].T
+    assert np.allclose(fitted, want, atol=1e-5)
+    table = shape_table_bundle(d)["text/plain"]
+    assert "field" in table and "complex" in table and "real" in table

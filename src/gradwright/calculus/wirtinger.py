@@ -372,6 +372,15 @@ def differential(e: E.Expr, wrt) -> E.Expr:
     return normalize(d(e))
 
 
+def _pending(x: E.Expr, wrt: frozenset, pending) -> E.Expr:
+    """d(x) still to be worked out; d(conj(Z)) of a variable is written conj(dZ) at once."""
+    if type(x) is Conj and type(x.args[0]) is E.Symbol:
+        return conj(pending(x.args[0], wrt))
+    if type(x) is E.Transpose and type(x.args[0]) is Conj and type(x.args[0].args[0]) is E.Symbol:
+        return E.transpose(conj(pending(x.args[0].args[0], wrt)))
+    return pending(x, wrt)
+
+
 def expand_once(e: E.Expr, wrt: frozenset) -> tuple[E.Expr, list[str], bool]:
     """Work out every pending d(...) by one rule, for the displayed steps."""
     from .rules import pending
@@ -383,7 +392,7 @@ def expand_once(e: E.Expr, wrt: frozenset) -> tuple[E.Expr, list[str], bool]:
         if type(node) is E.D and node not in mapping:
             inner_ = node.args[0]
             r = rule_for(inner_)
-            mapping[node] = r.apply(inner_, lambda c: pending(c, wrt))
+            mapping[node] = r.apply(inner_, lambda c: _pending(c, wrt, pending))
             name = r.name
             if type(inner_) is E.Named:
                 name = f"definition of {inner_.name}"

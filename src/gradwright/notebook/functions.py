@@ -71,6 +71,12 @@ class Packer:
     symbolic: dict  # variable -> declared shape (dims as str or int)
     constant_shapes: dict  # every other input -> declared shape
     shapes: dict = field(default_factory=dict)  # variable -> concrete shape, from `pack`
+    #: complex variables are packed as their real parts, then their imaginary parts; the
+    #: gradient G = ∂f/∂Re + i ∂f/∂Im then packs to the real gradient over those entries
+    complex_vars: frozenset = frozenset()
+
+    def _entries(self, var, shape) -> int:
+        return _prod(shape) * (2 if var in self.complex_vars else 1)
 
     @classmethod
     def for_derivation(cls, derivation) -> Packer:
@@ -80,7 +86,11 @@ class Packer:
             for name, info in derivation.symbols.items()
             if name not in symbolic and info.role == "constant"
         }
-        return cls(tuple(derivation.variables), symbolic, others)
+        field_of = getattr(derivation, "field", None)
+        complex_vars = frozenset(
+            v for v in derivation.variables if field_of is not None and field_of(v) == "complex"
+        )
+        return cls(tuple(derivation.variables), symbolic, others, complex_vars=complex_vars)
 
     def pack(self, *values, **arrays) -> np.ndarray:
         """`pack(U=U0, V=V0)` (or positionally in wrt order) -> 1-D float array."""
@@ -101,14 +111,18 @@ class Packer:
             )
         parts = []
         for var in self.variables:
-            value = np.asarray(arrays[var], dtype=float)
+            is_complex = var in self.complex_vars
+            value = np.asarray(arrays[var], dtype=complex if is_complex else float)
             if value.ndim != len(self.symbolic[var]):
                 raise ValueError(
                     f"{var} has {value.ndim} axes; the block declares "
                     f"{_shape_words(self.symbolic[var])}"
                 )
             self.shapes[var] = value.shape
-            parts.append(value.ravel())
+            if is_complex:
+                parts += [value.real.ravel(), value.imag.ravel()]
+            else:
+                parts.append(value.ravel())
         return np.concatenate(parts) if parts else np.zeros(0)
 
     def _concrete(self, length: int, constants: dict) -> dict:
@@ -149,7 +163,7 @@ class Packer:
             if len(unknown) == 1:
                 for guess in range(1, length + 1):
                     trial = resolve({unknown[0]: guess})
-                    total = sum(_prod(s) for s in trial.values())
+                    total = sum(self._entries(v, s) for v, s in trial.items())
                     if total == length:
                         shapes = trial
                         break
@@ -160,7 +174,7 @@ class Packer:
                     f"cannot tell the sizes of {', '.join(unknown)}: call pack(...) once with "
                     "arrays of the right shapes, or pass the constants that carry these dims"
                 )
-        total = sum(_prod(s) for s in shapes.values())
+        total = sum(self._entries(v, s) for v, s in shapes.items())
         if total != length:
             raise ValueError(f"the vector has {length} entries; the variables need {total}")
         return shapes
@@ -173,6 +187,9 @@ class Packer:
         for var in self.variables:
             size = _prod(shapes[var])
             piece = flat[start : start + size].reshape(shapes[var])
+            if var in self.complex_vars:
+                start += size
+                piece = piece + 1j * flat[start : start + size].reshape(shapes[var])
             out[var] = piece if piece.ndim else piece[()]
             start += size
         if as_dict:
@@ -189,7 +206,14 @@ class Packer:
             value, grads = value_and_gradient(**arrays)
             if len(variables) == 1:
                 grads = (grads,)
-            flat_grad = np.concatenate([np.asarray(g, dtype=float).ravel() for g in grads])
+            parts = []
+            for var, g in zip(variables, grads):
+                if var in self.complex_vars:
+                    g = np.asarray(g)
+                    parts += [np.real(g).ravel(), np.imag(g).ravel()]
+                else:
+                    parts.append(np.asarray(g, dtype=float).ravel())
+            flat_grad = np.concatenate(parts)
             return float(value), flat_grad
 
         return objective
