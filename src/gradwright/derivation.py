@@ -356,7 +356,7 @@ class Derivation:
     def supports_complex_step(self) -> bool:
         for node in E.walk(self.expr):
             t = type(node)
-            if t in (E.LogDet, E.Norm) or (t is E.Func and node.name == "softplus"):
+            if t in (E.LogDet, E.Norm, E.Abs) or (t is E.Func and node.name == "softplus"):
                 return False
             if t in (E.Solve, E.Inverse) and E.is_spd(node.args[0]):
                 return False

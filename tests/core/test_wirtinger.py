@@ -331,3 +331,15 @@ def test_optimizer_packing_and_shape_table_fields():
     assert np.allclose(fitted, want, atol=1e-5)
     table = shape_table_bundle(d)["text/plain"]
     assert "field" in table and "complex" in table and "real" in table
+
+
+def test_abs_of_a_real_block_is_the_absolute_value_and_refuses_the_complex_step():
+    d = derive("x: (n,)\nf = sum(abs(x - 1)) + abs(sum(x))", wrt="x")
+    assert type(d).__name__ == "Derivation"  # a real block stays on the real path
+    assert d.supports_complex_step is False  # |x + ih| has no useful imaginary part
+    arrays = d.sample_inputs(seed=2)
+    x = arrays["x"]
+    # reference: the sign function, d|u|/du = sign(u) away from 0 (from memory)
+    want = np.sign(x - 1) + np.sign(np.sum(x))
+    assert np.allclose(d.gradient_function()(**arrays), want)
+    assert np.isrealobj(d.gradient_function()(**arrays))
