@@ -236,6 +236,27 @@ class _Evaluator:
     def _ImagUnit(self, e):
         return np.array([[1j]])
 
+    def _SizeOf(self, e):
+        return np.array([[float(self.size(e.dim))]])
+
+    def _Pi(self, e):
+        return np.array([[np.pi]])
+
+    def _Index(self, e):
+        a, rows, cols = e.args
+        v = self.ev(a)
+        return v[self._take(rows, a.shape[0]), :][:, self._take(cols, a.shape[1])]
+
+    def _take(self, sel, size) -> slice:
+        """A selector (see expr.Index) as a slice of the internal 2-D array (axes kept)."""
+        if sel is None:
+            return slice(None)
+        if sel[0] == "at":
+            i = sel[1] % self.size(size)
+            return slice(i, i + 1)
+        start, stop = (self.size(b) if isinstance(b, E.Dim) else b for b in sel[1:])
+        return slice(start, stop)
+
     def _D(self, e):
         # directional derivative along the given differentials, 4th-order central difference
         inner = e.args[0]
@@ -279,3 +300,6 @@ def evaluate(e: E.Expr, arrays: dict, differentials: dict | None = None, dims: d
     all_dims.update(dims or {})
     out = _Evaluator(internal, diffs, all_dims).ev(e)
     return to_user(out, e.shape)
+
+
+from . import matrix_evaluate  # noqa: E402, F401  (evaluation of the matrix-function family)

@@ -646,11 +646,72 @@ class KronContract(Expr):
         return (self.args[2], self.args[3])
 
 
+class SizeOf(Expr):
+    """The size of a declared dim used as a number (`n / 2`): a scalar known at call time."""
+
+    __slots__ = ()
+
+    def _infer_shape(self):
+        return SCALAR
+
+    @property
+    def dim(self) -> Dim:
+        return self.args[0]
+
+
+class Pi(Expr):
+    """The constant π (`pi` in the formula language)."""
+
+    __slots__ = ()
+
+    def _infer_shape(self):
+        return SCALAR
+
+
+def _axis_take(size: OptDim, sel) -> OptDim:
+    """The length an axis keeps under a selector (see `Index`)."""
+    if sel is None:
+        if size is not None:
+            raise ShapeError("an index selector is missing for an axis")
+        return None
+    if size is None:
+        raise ShapeError("an index selector for a unit axis")
+    if sel[0] == "at":
+        return None
+    start, stop = sel[1], sel[2]
+    if start is None and stop is None:
+        return size
+    if isinstance(stop, Dim) and start is None:
+        return stop
+    if start is None and isinstance(stop, int) and stop > 0:
+        return Dim.of(stop)
+    if isinstance(start, int) and isinstance(stop, int) and (start < 0) == (stop < 0):
+        return Dim.of(stop - start)
+    if isinstance(start, int) and start < 0 and stop is None:
+        return Dim.of(-start)
+    raise ShapeError("not supported yet: a slice whose length is not a dim or a number")
+
+
+class Index(Expr):
+    """Constant indexing `a[rows, cols]`, linear in a; NumPy's positions (negative from the end).
+
+    Each selector is None for a unit axis, ("at", i) for one position (the axis is dropped) or
+    ("slice", start, stop) with bounds an int, a Dim (its size, from the start) or None (open).
+    """
+
+    __slots__ = ()
+
+    def _infer_shape(self):
+        a, rows, cols = self.args
+        return (_axis_take(a.shape[0], rows), _axis_take(a.shape[1], cols))
+
+
 NODE_CLASSES = (
     Symbol, Differential, Const, Identity, Ones, Zero, Commutation, Add, Mul, MatMul, Transpose,
     Power, Func, Trace, Det, LogDet, Inverse, Solve, Kron, Vec, Unvec, Diag, Diagm, Sum, Norm,
     LogSumExp, Softmax, MatPow, Named, D, KronContract,
 )  # fmt: skip
+NODE_CLASSES += (SizeOf, Pi, Index)
 
 # ---------------------------------------------------------------------------------------------
 # structure predicates
@@ -699,7 +760,8 @@ def _is_symmetric(e: Expr) -> bool:
             if fs[i] != transpose(fs[n - 1 - i]):
                 return False
         return n % 2 == 0 or is_symmetric(fs[n // 2])
-    return False
+    known = getattr(e, "known_symmetric", None)  # node families in their own modules
+    return known() if known is not None else False
 
 
 def is_spd(e: Expr) -> bool:
@@ -714,7 +776,8 @@ def is_spd(e: Expr) -> bool:
         consts = [f for f in e.args if isinstance(f, Const)]
         others = [f for f in e.args if not isinstance(f, Const)]
         return len(others) == 1 and all(c.value > 0 for c in consts) and is_spd(others[0])
-    return False
+    known = getattr(e, "known_spd", None)  # node families in their own modules
+    return known() if known is not None else False
 
 
 def is_diagonal(e: Expr) -> bool:
@@ -1132,6 +1195,32 @@ def inverse(a: Expr) -> Expr:
     return Inverse(a)
 
 
+FULL = ("slice", None, None)
+
+
+def index(a: Expr, rows, cols) -> Expr:
+    """a[rows, cols] with the canonical forms: a full selection is a itself, zeros stay zeros."""
+    if rows in (None, FULL) and cols in (None, FULL):
+        return a
+    if type(a) is Zero:
+        return zero_like(Index(a, rows, cols).shape)
+    if type(a) is Mul and a.scalar_factors:
+        arr = a.array_factors
+        return mul(*a.scalar_factors, index(arr[0] if len(arr) == 1 else Mul(*arr), rows, cols))
+    if type(a) is Add:
+        return add(*(index(t, rows, cols) for t in _terms_broadcast(a)))
+    return Index(a, rows, cols)
+
+
+def selection(size: Dim, sel) -> Expr:
+    """The constant matrix S with S @ v = v[sel] for a vector v of length `size` (eye(size)[sel]).
+
+    For one position S is the unit vector (a column), so that v[i] = Sᵀ v.
+    """
+    s = Index(Identity(size), sel, FULL)
+    return transpose(s) if sel[0] == "at" else s
+
+
 def sym_part(g: Expr) -> Expr:
     """(G + G^T) / 2, the gradient in the space of symmetric matrices."""
     if is_symmetric(g):
@@ -1203,6 +1292,8 @@ def rebuild_smart(x: Expr, ch: list[Expr]) -> Expr:
         return inverse(ch[0])
     if t is Unvec:
         return unvec(ch[0], x.args[1], x.args[2])
+    if t is Index:
+        return index(ch[0], x.args[1], x.args[2])
     return x.rebuild(ch)
 
 
@@ -1242,7 +1333,8 @@ def expanded_size(e: Expr, limit: int) -> int:
     return memo[id(e)]
 
 
-# the nodes of complex arithmetic live in their own module; they are nodes like any other
+# node families in their own modules; imported last because they build on the classes above
 from .complex_nodes import COMPLEX_NODE_CLASSES, Abs, Conj, Imag, ImagUnit, Real  # noqa: E402, F401
+from .matrix_functions import NODES as _MATRIX_NODES  # noqa: E402
 
-NODE_CLASSES = NODE_CLASSES + COMPLEX_NODE_CLASSES
+NODE_CLASSES = NODE_CLASSES + _MATRIX_NODES + COMPLEX_NODE_CLASSES

@@ -30,7 +30,7 @@ def test_derive_shows_math_shape_table_names_and_panel(shell):
     cap = run_derive(shell, "U V", DEMAND)
     bundles = _bundles(cap)
     math = [b for b in bundles if "text/latex" in b]
-    tables = [b for b in bundles if "text/html" in b and "<table" in b["text/html"]]
+    tables = [b for b in bundles if "gradwright-shapes" in b.get("text/html", "")]
     panels = [b for b in bundles if WIDGET in b]
     assert len(math) == 1 and len(tables) == 1 and len(panels) == 1
     latex = math[0]["text/latex"]

@@ -159,7 +159,7 @@ def is_real(e: E.Expr) -> bool:
 
 _LINEAR_THROUGH = (
     E.Add, E.Mul, E.MatMul, E.Transpose, E.Trace, E.Sum, E.Vec, E.Unvec, E.Diag, E.Diagm,
-    E.Kron, E.Solve, E.Inverse, E.Det, E.MatPow, E.KronContract,
+    E.Kron, E.Solve, E.Inverse, E.Det, E.MatPow, E.KronContract, E.Index,
 )  # fmt: skip
 
 
@@ -322,20 +322,34 @@ def rule_for(x: E.Expr) -> Rule:
     return r
 
 
-_REAL_ONLY_FUNCS = ("sigmoid", "softplus")
+#: the operations worked out for complex arguments; anything else met with a complex argument
+#: is refused before anything is derived
+COMPLEX_OK = frozenset(
+    {
+        E.Symbol, E.Differential, E.Const, E.Identity, E.Ones, E.Zero, E.Add, E.Mul, E.MatMul,
+        E.Transpose, E.Power, E.Func, E.Trace, E.Det, E.LogDet, E.Inverse, E.Solve, E.Kron,
+        E.Vec, E.Unvec, E.Diag, E.Diagm, E.Sum, E.Norm, E.MatPow, E.Named, E.Index,
+        Conj, Real, Imag, Abs, ImagUnit,
+    }
+)  # fmt: skip
+
+_NAMES = {E.LogSumExp: "logsumexp", E.Softmax: "softmax"}
 
 
 def check_supported(e: E.Expr) -> None:
     """Refuse, before anything is derived, the operations not worked out for complex values."""
     for node in E.walk(e):
+        if not has_complex(node):
+            continue
         t = type(node)
         what = None
-        if t is E.Func and node.name in _REAL_ONLY_FUNCS and has_complex(node.arg):
+        if t is E.Func and node.name not in HOLOMORPHIC_FUNCS:
             what = f"{node.name} of a complex argument"
-        elif t in (E.LogSumExp, E.Softmax) and has_complex(node.args[0]):
-            what = f"{'logsumexp' if t is E.LogSumExp else 'softmax'} of a complex argument"
         elif t is E.Power and has_complex(node.args[1]):
             what = "a complex exponent"
+        elif t not in COMPLEX_OK:
+            name = _NAMES.get(t, getattr(node, "name", None) or t.__name__)
+            what = f"{name} of a complex argument"
         if what is not None:
             raise NotSupportedError(f"not supported yet: {what}")
 

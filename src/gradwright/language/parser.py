@@ -19,7 +19,9 @@ from fractions import Fraction
 
 from .. import expr as E
 from ..errors import FormulaError, NotSupportedError, ShapeError
+from .broadcast import broadcast_all, broadcast_shapes, clash_message, internal_shape, numpy_shape
 from .registry import CALLS
+from .subscripts import subscript
 
 STRUCTURE_WORDS = (
     "symmetric", "spd", "diagonal", "positive", "orthogonal", "square", "invertible",
@@ -67,11 +69,12 @@ for _name, _spec in CALLS.items():
 # names the generated module binds at module level (its imports); a symbol of the same name
 # would shadow them inside the generated functions
 _GENERATED_MODULE_NAMES = {"np", "numpy", "scipy", "warnings", "cho_factor", "cho_solve"}
-_RESERVED = set(FUNCTIONS) | {"T", "d"} | _GENERATED_MODULE_NAMES
+#: `pi` is the one named constant; `T` and `d` are ordinary names (`.T` is an attribute, and
+#: `d(X)` means a differential only where differentials are asked for and no symbol is named d)
+_RESERVED = set(FUNCTIONS) | {"pi"} | _GENERATED_MODULE_NAMES
 
 # each entry is the subject of "... not part of the formula language", with its verb
 _CONSTRUCT_NAMES = {
-    ast.Subscript: "subscripts like A[0] are",
     ast.Lambda: "lambda expressions are",
     ast.ListComp: "list comprehensions are",
     ast.SetComp: "set comprehensions are",
@@ -364,7 +367,7 @@ class _Reader:
             self.fail(f"names may not start with '_' ({name!r})", lineno, col, width)
         if keyword.iskeyword(name):
             self.fail(f"{name!r} is a Python keyword and cannot name a {what}", lineno, col, width)
-        if name in _RESERVED and (what == "symbol" or name in FUNCTIONS):
+        if name in _RESERVED and (what == "symbol" or name in FUNCTIONS or name == "pi"):
             self.fail(
                 f"{name!r} is a function or reserved word of the formula language; "
                 f"choose another name for the {what}",
@@ -919,6 +922,8 @@ class _Reader:
             return E.transpose(a)
         if isinstance(node, ast.Call):
             return self.call(node, depth)
+        if isinstance(node, ast.Subscript):
+            return subscript(self, node, depth)
         what = _CONSTRUCT_NAMES.get(type(node), f"{type(node).__name__} expressions are")
         self.fail_node(_not_in_language(what), node)
 
@@ -939,10 +944,9 @@ class _Reader:
         if n in self.env:
             return self.env[n]
         if n in self.block.dims:
-            self.fail_node(
-                f"{n} is a dim, not a symbol; use it inside eye({n}), ones({n}) or zeros({n})",
-                node,
-            )
+            return E.SizeOf(E.Dim.of(n))  # a dim in an expression is its size, as in NumPy
+        if n == "pi":
+            return E.Pi()
         if n in FUNCTIONS:
             self.fail_node(f"{n} is a function; call it, like {n}(A)", node)
         if not n.isascii():
@@ -983,19 +987,19 @@ class _Reader:
             # the terms are collected and summed once: adding one at a time re-collects the
             # growing sum at every step, quadratic in the number of terms
             terms = []
-            widest = None  # the first array term: the sum's shape
+            widest = None  # the array term with the sum's shape so far (NumPy broadcasting)
             for negate, tnode in terms_nodes:
                 t = self.tr(tnode, depth)
                 if terms:
-                    self.check_add(
+                    widest = self.check_add(
                         widest if widest is not None else terms[0], t, tnode, cur, negate
                     )
-                if widest is None and not t.is_scalar:
+                elif not t.is_scalar:
                     widest = t
                 terms.append(E.neg(t) if negate and terms else t)
             if len(terms) == 1:
                 return terms[0]
-            acc = E.add(*terms)
+            acc = E.add(*broadcast_all(terms))
             self.check_constant_size(acc, node)
             return acc
         a = self.tr(node.left, depth)
@@ -1046,21 +1050,15 @@ class _Reader:
                 )
 
     def binop_checked(self, op, a, b, node):
-        if op is ast.Mult:
+        if op in (ast.Mult, ast.Div):
             if not (a.is_scalar or b.is_scalar) and a.shape != b.shape:
-                self.fail_node(
-                    f"cannot multiply entrywise a {E.describe(a)} and a {E.describe(b)}: "
-                    "* needs equal shapes or a scalar (use @ for the matrix product)",
-                    node,
-                )
-            return E.mul(a, b)
-        if op is ast.Div:
-            if not (a.is_scalar or b.is_scalar) and a.shape != b.shape:
-                self.fail_node(
-                    f"cannot divide entrywise a {E.describe(a)} by a {E.describe(b)}: "
-                    "/ needs equal shapes or a scalar",
-                    node,
-                )
+                if broadcast_shapes(numpy_shape(a.shape), numpy_shape(b.shape)) is None:
+                    what = "multiply entrywise" if op is ast.Mult else "divide entrywise"
+                    hint = " (use @ for the matrix product)" if op is ast.Mult else ""
+                    self.fail_node(clash_message(what, a, b) + hint, node)
+                a, b = broadcast_all([a, b])
+            if op is ast.Mult:
+                return E.mul(a, b)
             if isinstance(b, E.Const) and b.value == 0:
                 self.fail_node("division by zero", node)
             return E.div(a, b)
@@ -1077,13 +1075,21 @@ class _Reader:
         self.fail_node("this operator is not part of the formula language", node)
 
     def check_add(self, a, b, node, left_node, negate):
-        if a.is_scalar or b.is_scalar or a.shape == b.shape:
-            return
-        verb = "subtract" if negate else "add"
-        self.fail_node(
-            f"cannot {verb} a {E.describe(b)} {'from' if negate else 'and'} a "
-            f"{E.describe(a)}: shapes differ (only a scalar is added to every entry)",
-            node,
+        """The wider of a and b under NumPy's broadcasting, or a caret under b."""
+        if b.is_scalar or a.shape == b.shape:
+            return a
+        if a.is_scalar:
+            return b
+        got = broadcast_shapes(numpy_shape(a.shape), numpy_shape(b.shape))
+        if got is None:
+            verb = "subtract" if negate else "add"
+            self.fail_node(clash_message(verb, a, b), node)
+        return (
+            a
+            if got == numpy_shape(a.shape)
+            else b
+            if got == numpy_shape(b.shape)
+            else (E.Zero(internal_shape(got)))
         )
 
     def matmul(self, a, b, node):
@@ -1171,7 +1177,7 @@ class _Reader:
             if close and close[0] in _COMPLEX_FUNCTIONS and hasattr(builtins, fname):
                 close = []  # eval is no misspelt real: Python's builtins get their own message
             hint = f"; did you mean {close[0]}?" if close else ""
-            if not close and (hasattr(builtins, fname) or fname in _GENERATED_MODULE_NAMES):
+            if hasattr(builtins, fname) or fname in _GENERATED_MODULE_NAMES:
                 hint = (
                     f": Python's builtins {_not_in_language('are')}, only its own functions "
                     "(trace, det, inv, solve, exp, ...)"
@@ -1315,6 +1321,8 @@ class _Reader:
                     node,
                 )
             self.fail_node(f"unknown dim {node.id!r}: it is not used in any declared shape", node)
+        if isinstance(node, ast.BinOp) and isinstance(node.op, ast.Mult):
+            return self.dim_arg(node.left) * self.dim_arg(node.right)  # eye(n*n), ones(m*n)
         self.fail_node("a dim is a name used in a declared shape, or a positive integer", node)
 
 

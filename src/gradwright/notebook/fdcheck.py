@@ -11,6 +11,8 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from ..matrix_checks import derivative_notes
+
 __all__ = [
     "METHODS",
     "CheckResult",
@@ -368,6 +370,8 @@ def run_check(
     except Exception as err:  # shown in the panel, never raised through it
         result.error = f"{type(err).__name__}: {err}"
     result.elapsed = time.perf_counter() - started
+    # said whether or not the check went through: it explains failures near such points
+    result.notes.extend(derivative_notes(derivation.expr, arrays))
     if result.error is None:
         for check in result.checks:
             tiny = [abs(a) for _, a, _, _ in check.directional]

@@ -134,6 +134,27 @@ def is_small_fraction(v: Fraction) -> bool:
     return q != 1
 
 
+def fraction_parts(v: Fraction) -> tuple[str, int] | None:
+    """(numerator text, denominator) for a positive constant best shown as a fraction:
+    1/2 -> ("1", 2), 2/3 -> ("2", 3), 1.5e-7/7 -> ("1.5e-7", 7); None for a plain decimal.
+
+    >>> fraction_parts(Fraction(3, 140000000))
+    ('1.5e-7', 7)
+    """
+    if is_small_fraction(v):
+        return str(v.numerator), v.denominator
+    q = v.denominator
+    while q % 2 == 0:
+        q //= 2
+    while q % 5 == 0:
+        q //= 5
+    if q == 1 or q > 10 * SMALL_DENOMINATOR:
+        return None
+    top = v * q  # a terminating decimal: the number as it was written, before the division
+    text = number_text(top)
+    return (text, q) if Fraction(text) == top else None
+
+
 def number_text(v: Fraction) -> str:
     """A non-negative constant as a decimal with no more digits than it needs.
 
@@ -151,6 +172,8 @@ def number_text(v: Fraction) -> str:
         text = f"{float(v):.15g}"
         exact = text if Fraction(text) == v else None
     text = exact if exact is not None else repr(float(v))
+    if exact is None and significant_digits(text) > 16:  # a float holds about 16 digits
+        text = f"{float(v):.16g}"
     if "e" in text or "E" in text:
         mantissa, _, exponent = text.lower().partition("e")
         return f"{mantissa}e{int(exponent)}"

@@ -12,8 +12,9 @@ MAX_DP_CHAIN = 16
 class CostModel:
     """Flop estimates from guessed dim sizes (user hints first)."""
 
-    def __init__(self, sizes: dict):
+    def __init__(self, sizes: dict, hinted=()):
         self.sizes = sizes
+        self.hinted = frozenset(hinted)  # dims the user gave sizes for: decided here, not later
         self._orders: dict = {}
         self._flops: dict = {}
 
@@ -32,6 +33,10 @@ class CostModel:
         """Optimal parenthesization (dynamic programming, memoized on the dims); returns
         (cost, tree). Chains longer than MAX_DP_CHAIN are multiplied left to right."""
         dims = (self.dim(factors[0].shape[0]),) + tuple(self.dim(f.shape[1]) for f in factors)
+        return self.chain_order_of_dims(dims)
+
+    def chain_order_of_dims(self, dims: tuple):
+        """chain_order for a chain d0 x d1, d1 x d2, ... given as numbers."""
         hit = self._orders.get(dims)
         if hit is None:
             hit = self._chain_order(dims)
@@ -176,13 +181,32 @@ def _distribute(m: E.MatMul, cost: CostModel, free, go) -> E.Expr:
         body = _unwrap(f)
         if type(body) is not E.Add or f in free:
             continue
-        factored = cost.flops(m, free)
         # a scalar term of a broadcast sum is c * ones(shape) inside a product
         parts = [E.mul(t, E.Ones(body.shape)) if t.is_scalar else t for t in body.args]
         terms = [E.matmul(*fs[:i], t, *fs[i + 1 :]) for t in parts]
-        distributed = sum(cost.flops(t, free) for t in terms) + cost.size(m.shape) * len(terms)
-        if distributed < 0.8 * factored:
+
+        def cheaper(model: CostModel, terms=terms) -> bool:
+            factored = model.flops(m, free)
+            distributed = sum(model.flops(t, free) for t in terms)
+            return distributed + model.size(m.shape) * len(terms) < 0.8 * factored
+
+        from .calltime import sample_sizes, sym_flops  # (calltime builds on this module)
+
+        names = {n for x in E.walk(m) for d in x.shape if d is not None for n in d.names}
+        if names <= cost.hinted:
+            votes = {cheaper(cost)}
+        else:
+            votes = {cheaper(CostModel(s)) for s in sample_sizes(names)}
+        if votes == {True}:
             return go(E.add(*terms))
+        if votes == {True, False}:  # the sizes decide: both forms, chosen at call time
+            from .calltime import CallTimeChoice
+
+            dist = go(E.add(*terms))
+            own = _solves(m)
+            return CallTimeChoice(
+                own, dist, sym_flops(own, cost, free), sym_flops(dist, cost, free)
+            )
     return m
 
 

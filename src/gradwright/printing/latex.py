@@ -6,7 +6,7 @@ import re
 
 from .. import expr as E
 from . import precedence as P
-from .base import Printer, is_small_fraction, join_terms, number_text, split_numerator
+from .base import Printer, fraction_parts, join_terms, number_text, split_numerator
 
 #: between the factors of a product, so that `days S` or `dS S` never read as one word
 THIN = r"\,"
@@ -104,8 +104,9 @@ class LatexPrinter(Printer):
         v = e.value
         if v < 0:
             return "-" + self._print(E.Const(-v))
-        if is_small_fraction(v):
-            return rf"\frac{{{v.numerator}}}{{{v.denominator}}}"
+        parts = fraction_parts(v)
+        if parts is not None:
+            return rf"\frac{{{latex_number(parts[0])}}}{{{parts[1]}}}"
         return latex_number(number_text(v))
 
     def _print_Identity(self, e):
@@ -150,10 +151,11 @@ class LatexPrinter(Printer):
         arrs = [f for f in num if not f.is_scalar]
         top: list[str] = []  # scalar factors above the fraction bar
         bottom = [self.paren(d, P.PRODUCT + 1) for d in scalars_den]
-        if is_small_fraction(coef):  # N/2 reads as \frac{N}{2}, never 0.5 N
-            if coef.numerator != 1:
-                top.append(str(coef.numerator))
-            bottom.insert(0, str(coef.denominator))
+        parts = fraction_parts(coef) if coef > 0 else None
+        if parts is not None:  # N/2 reads as \frac{N}{2}, never 0.5 N
+            if parts[0] != "1":
+                top.append(latex_number(parts[0]))
+            bottom.insert(0, str(parts[1]))
         elif coef != 1:
             top.append(latex_number(number_text(coef)))
         for f in scal:
@@ -273,6 +275,26 @@ class LatexPrinter(Printer):
 
     def _print_ImagUnit(self, e):
         return r"\mathrm{i}"
+
+    def _print_SizeOf(self, e):
+        return dim_latex(e.dim)
+
+    def _print_Pi(self, e):
+        return r"\pi"
+
+    def _print_Index(self, e):
+        a, rows, cols = e.args
+        sels = []
+        for sel in (rows, cols):
+            if sel is None:
+                continue
+            if sel[0] == "at":
+                sels.append(str(sel[1]))
+                continue
+            lo, hi = ("" if b is None else dim_latex(b) for b in sel[1:])
+            sels.append(f"{lo}{{:}}{hi}")
+        sep = r",\,"
+        return rf"{self.paren(a, P.ATOM)}_{{[{sep.join(sels)}]}}"
 
     def _print_KronContract(self, e):
         # G_{[ij]} is the (i, j) block of G, sized like the other factor: the blocks of

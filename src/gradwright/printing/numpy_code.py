@@ -9,12 +9,20 @@ from __future__ import annotations
 
 import keyword
 from dataclasses import dataclass, field
-from types import SimpleNamespace
 
 from .. import expr as E
 from ..complex_nodes import COMPLEX_WORDS
 from . import precedence as P
 from .base import split_numerator
+from .calltime import (
+    CallTimeChoice,
+    chain_candidates,
+    chain_dims,
+    choice_text,
+    poly_text,
+    tree_cost,
+)
+from .checks import check_code, finite_lines
 from .costmodel import (  # noqa: F401 - public names kept importable from here
     MAX_DP_CHAIN,
     CostModel,
@@ -48,6 +56,10 @@ class NumpyPrinter(TextPrinter):
             return name
         return super()._print(e)
 
+    def _print_CallTimeChoice(self, e):
+        own, dist, own_cost, dist_cost = e.args
+        return f"({self._print(dist)} if {dist_cost} < 0.8 * ({own_cost}) else {self._print(own)})"
+
     def use(self, helper: str):
         self.gen.helpers.add(helper)
 
@@ -80,17 +92,17 @@ class NumpyPrinter(TextPrinter):
         return repr(float(v))
 
     def _print_Identity(self, e):
-        return f"np.eye({self.dim(e.args[0])})"
+        return f"np.eye({self.dim(e.args[0])}, dtype=_dims.dtype)"
 
     def _print_Ones(self, e):
-        return f"np.ones({self.shape_tuple(e.shape)})"
+        return f"np.ones({self.shape_tuple(e.shape)}, dtype=_dims.dtype)"
 
     def _print_Zero(self, e):
-        return f"np.zeros({self.shape_tuple(e.shape)})"
+        return f"np.zeros({self.shape_tuple(e.shape)}, dtype=_dims.dtype)"
 
     def _print_Commutation(self, e):
         self.use("_gw_commutation")
-        return f"_gw_commutation({self.dim(e.args[0])}, {self.dim(e.args[1])})"
+        return f"_gw_commutation({self.dim(e.args[0])}, {self.dim(e.args[1])}, _dims.dtype)"
 
     def _print_Mul(self, e):
         coef, num, den = split_numerator(e)
@@ -146,15 +158,19 @@ class NumpyPrinter(TextPrinter):
             return items[0][0]
         if len(items) == 2:
             return f"{self.wrap(items[0][0])} @ {self.wrap(items[1][0])}"
-        shapes = [SimpleNamespace(shape=shape) for _, shape, _ in items]
-        _, tree = self.gen.cost.chain_order(shapes)
+        shapes = [shape for _, shape, _ in items]
+        trees = chain_candidates(shapes, self.gen.cost)
 
         def emit(t):
             if isinstance(t, int):
                 return self.wrap(items[t][0])
             return f"({emit(t[0])} @ {emit(t[1])})"
 
-        out = emit(tree)
+        if len(trees) > 1:  # the order depends on the sizes: chosen at call time
+            texts = [emit(t)[1:-1] for t in trees]
+            costs = [poly_text(tree_cost(chain_dims(shapes), t)) for t in trees]
+            return f"({choice_text(texts, costs)})"
+        out = emit(trees[0])
         return out[1:-1] if out.startswith("(") and out.endswith(")") else out
 
     @staticmethod
@@ -216,21 +232,29 @@ class NumpyPrinter(TextPrinter):
 
     def _print_Sum(self, e):
         a = e.args[0]
-        if type(a) is E.Power and a.args[1] == E.Const(2) and self.gen.temps.get(a) is None:
+        if _is_square(a) and self.gen.temps.get(a) is None and not E.is_scalar_shape(a.shape):
             x = self._print(a.args[0])
-            sub = "ij,ij->" if E.is_matrix_shape(a.shape) else "i,i->"
-            return f'np.einsum("{sub}", {x}, {x})'  # no temporary for the squares
-        if type(a) is E.Mul and len(a.array_factors) == 2 and not a.scalar_factors:
+            if not E.is_matrix_shape(a.shape):
+                return f"{self.wrap(x)} @ {self.wrap(x)}"  # one BLAS dot, no temporary
+            return f'np.einsum("ij,ij->", {x}, {x})'  # no temporary for the squares
+        if (
+            type(a) is E.Mul
+            and len(a.array_factors) == 2
+            and not a.scalar_factors
+            and not E.is_scalar_shape(a.shape)
+        ):
             x, y = a.args
             if not any(type(f) is E.Power and type(f.args[1]) is E.Const and f.args[1].value < 0
                        for f in (x, y)):  # fmt: skip
-                sub = "ij,ij->" if E.is_matrix_shape(a.shape) else "i,i->"
-                return f'np.einsum("{sub}", {self._print(x)}, {self._print(y)})'
+                if not E.is_matrix_shape(a.shape):
+                    return f"{self.wrap(self._print(x))} @ {self.wrap(self._print(y))}"
+                return f'np.einsum("ij,ij->", {self._print(x)}, {self._print(y)})'
         return f"np.sum({self._print(a)})"
 
     def _spd_factor(self, a: E.Expr) -> str | None:
         if E.is_spd(a) and self.gen.use_cholesky:
             self.use("_gw_cho")
+            self.use("_gw_cho_solve")
             return self.gen.cholesky_for(a, self)
         return None
 
@@ -246,7 +270,7 @@ class NumpyPrinter(TextPrinter):
         a = e.args[0]
         cho = self._spd_factor(a)
         if cho is not None:
-            return f"cho_solve({cho}, np.eye({self.dim(a.shape[0])}))"
+            return f"_gw_cho_solve({cho}, np.eye({self.dim(a.shape[0])}, dtype=_dims.dtype))"
         self.use("_gw_inv")
         return f"_gw_inv({self._print(a)}, {self.label(a)})"
 
@@ -254,7 +278,7 @@ class NumpyPrinter(TextPrinter):
         a, b = e.args
         cho = self._spd_factor(a)
         if cho is not None:
-            return f"cho_solve({cho}, {self._print(b)})"
+            return f"_gw_cho_solve({cho}, {self._print(b)})"
         self.use("_gw_solve")
         return f"_gw_solve({self._print(a)}, {self._print(b)}, {self.label(a)})"
 
@@ -315,6 +339,9 @@ class NumpyPrinter(TextPrinter):
 
     def _print_MatPow(self, e):
         return f"np.linalg.matrix_power({self._print(e.args[0])}, {e.args[1]})"
+
+    def _print_Pi(self, e):
+        return "np.pi"
 
     def _print_Conj(self, e):
         return f"np.conj({self._print(e.args[0])})"
@@ -386,6 +413,7 @@ class CodeGen:
         self.directions: dict = {}
         self.lines: list[str] = []
         self.cholesky: dict = {}
+        self.module_lines: list[str] = []
         #: complex blocks: directions and cotangents may be complex arrays
         self.complex_directions = False
 
@@ -420,28 +448,20 @@ class CodeGen:
             return f"({parts[0]},)"
         return "(" + ", ".join(parts) + ")"
 
-    def check_lines(self, direction) -> list[str]:
-        names = list(self.required)
-        specs = [
-            f"({n!r}, {n}, {self.spec_of(self.symbols[n].shape)}{_field(self.symbols[n])})"
-            for n in names
+    def check_lines(self, direction, fname: str = "f") -> list[str]:
+        """The argument checks of one function; their module-level cache goes to self.module."""
+        entries = [
+            (n, n, self.spec_of(self.symbols[n].shape), *_field(self.symbols[n]))
+            for n in self.required
         ]
         if direction is not None:
             pname, _sym, shape = direction
-            marker = ', "complex"' if self.complex_directions else ""
-            specs.append(
-                f"({_direction_label(direction)!r}, {pname}, {self.spec_of(shape)}{marker})"
-            )
-            names.append(pname)
-        if not specs:
-            return ["    _dims = {}"]
+            marker = ("complex",) if self.complex_directions else ()
+            entries.append((_direction_label(direction), pname, self.spec_of(shape), *marker))
         self.helpers.add("_gw_check")
-        targets = ", ".join(names) + ("," if len(names) == 1 else "")
-        return [
-            f"    ({targets}), _dims = _gw_check((",
-            *[f"        {s}," for s in specs],
-            "    ))",
-        ]
+        module_lines, body = check_code(fname, entries)
+        self.module_lines = module_lines
+        return body
 
     def function(self, spec: FunctionSpec) -> str:
         self.temps, self.lines, self.cholesky = {}, [], {}
@@ -453,7 +473,7 @@ class CodeGen:
                 self.directions = {sym: pname}
         head = [f"def {spec.name}({self.signature(direction[0] if direction else None)}):"]
         head.append(f'    """{spec.doc}"""')
-        head += self.check_lines(direction)
+        head += self.check_lines(direction, spec.name)
         exprs = [o.expr for o in spec.outputs]
         shared = _shared_nodes(exprs)
         counter = [0]
@@ -485,21 +505,19 @@ class CodeGen:
             emit(o.expr)
             text = printer._print(o.expr)
             self.lines.append(f"    {o.name} = {text}")
-            if not E.is_matrix_shape(o.shape) and not E.is_scalar_shape(o.shape):
-                pass
             self.helpers.add("_gw_finite")
-            self.lines.append(f"    _gw_finite({o.name}, {o.what!r})")
+            self.lines += finite_lines(o.name, o.shape, o.what)
         body = head + self.lines
         if spec.loop:
             body.append(spec.loop)
         body.append(f"    return {spec.returns}")
         self.directions = {}
-        return "\n".join(body)
+        return "\n".join([*self.module_lines, "", ""] * bool(self.module_lines) + body)
 
 
-def _field(sym) -> str:
+def _field(sym) -> tuple:
     """The marker that lets a complex-declared symbol take complex arrays."""
-    return ', "complex"' if sym.structure & COMPLEX_WORDS else ""
+    return ("complex",) if sym.structure & COMPLEX_WORDS else ()
 
 
 def _direction_label(direction) -> str:
@@ -516,27 +534,39 @@ def _shared_nodes(exprs) -> set:
     visited: set = set()
     for e in exprs:
         count[e] = count.get(e, 0)
+    inside: set = set()  # below a call-time choice: computed only if its branch is taken
     while stack:
         x = stack.pop()
         if x in visited:
             continue
         visited.add(x)
+        if type(x) is CallTimeChoice:
+            inside.update(n for c in x.children for n in E.walk(c))
+            continue
         for c in x.children:
             count[c] = count.get(c, 0) + 1
             if c not in visited:
                 stack.append(c)
+        if type(x) is E.Sum and _is_square(x.args[0]) and not x.args[0].is_scalar:
+            # printed as a product with itself
+            base = x.args[0].args[0]
+            count[base] = count.get(base, 0) + 1
     out = set()
     for node, k in count.items():
         if _trivial(node):
             continue
-        if type(node) is E.Named or k > 1:
+        if type(node) is E.Named or k > 1 or node in inside:
             out.add(node)
     return out
 
 
+def _is_square(e: E.Expr) -> bool:
+    return type(e) is E.Power and e.args[1] == E.Const(2)
+
+
 def _trivial(node) -> bool:
     t = type(node)
-    if t in (E.Symbol, E.Const, E.Differential, E.Identity, E.Ones, E.Zero):
+    if t in (E.Symbol, E.Const, E.Differential, E.Identity, E.Ones, E.Zero, E.SizeOf, E.Pi):
         return True
     if t is E.Transpose and type(node.args[0]) in (E.Symbol, E.Named):
         return True
@@ -546,10 +576,9 @@ def _trivial(node) -> bool:
 
 
 def module(header: str, functions: list[str], helpers: set, uses_scipy: bool) -> str:
-    """The whole generated module text (runs with NumPy, and SciPy for spd symbols)."""
-    lines = [header, "import warnings", "", "import numpy as np"]
-    if uses_scipy:
-        lines.append("from scipy.linalg import cho_factor, cho_solve")
+    """The whole generated module text (runs with NumPy; SciPy is imported on the first call
+    that factors an spd matrix)."""
+    lines = [header, "import cmath", "import warnings", "", "import numpy as np"]
     lines.append("")
     for name in sorted(helpers):
         lines.append(HELPERS[name].rstrip())
@@ -559,7 +588,8 @@ def module(header: str, functions: list[str], helpers: set, uses_scipy: bool) ->
         lines.append("")
         lines.append(f)
         lines.append("")
-        names.append(f[4 : f.index("(")])
+        at = f.index("def ") + 4
+        names.append(f[at : f.index("(", at)])
     # the dense Jacobian and Hessian loops call the products through this table, so that no
     # user symbol of the same name can shadow them
     lines.append("")

@@ -56,7 +56,8 @@ def latex_precedence(e: E.Expr) -> int:
             if len(named) > 1 or any(len(d.names) + (d.coef != 1) > 1 for d in named)
             else ATOM
         )
-    return ATOM
+    own = getattr(e, "latex_precedence", None)  # node families printed in their own modules
+    return own if own is not None else ATOM
 
 
 def text_precedence(e: E.Expr) -> int:

@@ -3,93 +3,10 @@ Cholesky factors, imported lazily on first use)."""
 
 from __future__ import annotations
 
+from .checks import CHECK_HELPER
+
 HELPERS = {
-    "_gw_check": '''
-class _GwDims(dict):
-    """Dim sizes bound by the arguments; a size no argument fixes is a clear error."""
-
-    def __missing__(self, key):
-        raise ValueError(
-            f"the size of dim {key} is not known from the arrays passed (none of them has "
-            f"{key} as a dim of its own)"
-        )
-
-
-# set only while the finite-difference check evaluates the value function at a complex step
-_GW_COMPLEX_STEP = []
-
-
-def _gw_check(specs):
-    """Validate the arguments; returns the arrays and the dims they bind."""
-    dims, owner, out, products = _GwDims(), {}, [], []
-    for name, value, spec, *field in specs:
-        if isinstance(value, (str, bytes)) or value is None:
-            raise TypeError(f"{name} must be a numeric array, got {type(value).__name__}")
-        try:
-            a = np.asarray(value)
-        except Exception as err:
-            raise TypeError(
-                f"{name} must be a numeric array; NumPy cannot read it ({err})"
-            ) from None
-        if a.dtype.kind not in "biufc":
-            got = f"dtype {a.dtype}" if isinstance(value, np.ndarray) else type(value).__name__
-            raise TypeError(f"{name} must be a numeric array, got {got}")
-        if a.dtype.kind == "c" and not _GW_COMPLEX_STEP and not field:
-            if " " in name:  # a direction or cotangent, not a declared symbol
-                raise TypeError(
-                    f"{name} is a complex array, but the block is real: pass a real array"
-                )
-            shown = "(" + ", ".join(map(str, spec)) + ("," if len(spec) == 1 else "") + ")"
-            raise TypeError(
-                f"{name} is a complex array, but {name} is declared real: the derivative of a "
-                f"real formula is wrong for complex input. Declare it `{name}: {shown} complex` "
-                f"or pass a real array (for example {name}.real)"
-            )
-        if a.dtype.kind in "bi":
-            a = a.astype(float)
-        if a.ndim != len(spec):
-            want = ("a scalar", "a vector", "a matrix")[len(spec)]
-            shown = "(" + ", ".join(map(str, spec)) + ("," if len(spec) == 1 else "") + ")"
-            axes = "1 axis" if a.ndim == 1 else f"{a.ndim} axes"
-            raise ValueError(f"{name} should be {want} {shown} but has {axes}, shape {a.shape}")
-        for axis, (d, n) in enumerate(zip(spec, a.shape)):
-            word = ("rows", "columns")[axis] if len(spec) == 2 else "entries"
-            if isinstance(d, int):
-                if n != d:
-                    raise ValueError(f"{name} has {n} {word} but its declaration says {d}")
-            elif "*" in d:
-                products.append((name, word, d, n))
-            elif d in dims:
-                if dims[d] != n:
-                    other, other_word = owner[d]
-                    raise ValueError(
-                        f"{name} has {n} {word} but {other} has {d} = {dims[d]}"
-                        + (f" {other_word}" if other_word != word else "")
-                    )
-            else:
-                dims[d], owner[d] = n, (name, word)
-        out.append(a)
-    for _ in range(len(products)):  # after every plain dim is bound; a lone unknown is inferred
-        pending = []
-        for name, word, d, n in products:
-            want, unknown = 1, []
-            for part in d.split("*"):
-                if part.isdigit() or part in dims:
-                    want *= int(part) if part.isdigit() else dims[part]
-                else:
-                    unknown.append(part)
-            if not unknown:
-                if n != want:
-                    raise ValueError(f"{name} has {n} {word} but {d} = {want}")
-            elif len(unknown) == 1 and n % want == 0:
-                dims[unknown[0]], owner[unknown[0]] = n // want, (name, word)
-            else:
-                pending.append((name, word, d, n))
-        if len(pending) == len(products):
-            break  # what stays unknown is reported where a size is needed
-        products = pending
-    return out, dims
-''',
+    "_gw_check": CHECK_HELPER,
     "_gw_finite": """
 def _gw_finite(value, what):
     bad = np.size(value) - np.count_nonzero(np.isfinite(value))
@@ -136,12 +53,20 @@ def _gw_cho(a, label):
     # answer; the tolerance is relative to the largest entry (common practice)
     if np.max(np.abs(a - a.T), initial=0.0) > 1e-8 * max(1.0, np.max(np.abs(a), initial=0.0)):
         raise ValueError(f"{label} is declared spd but is not symmetric")
+    from scipy.linalg import cho_factor  # imported on first use: a fast first import
+
     try:
-        return cho_factor(a)
+        return cho_factor(a, check_finite=False)
     except np.linalg.LinAlgError:
         raise np.linalg.LinAlgError(
             f"{label} is not positive definite (it is declared spd)"
         ) from None
+""",
+    "_gw_cho_solve": """
+def _gw_cho_solve(factor, b):
+    from scipy.linalg import cho_solve
+
+    return cho_solve(factor, b, check_finite=False)
 """,
     "_gw_adjugate": """
 def _gw_adjugate(a):
@@ -171,8 +96,8 @@ def _gw_softmax(x):
     return z / np.sum(z)
 """,
     "_gw_commutation": """
-def _gw_commutation(m, n):
-    k = np.zeros((m * n, m * n))
+def _gw_commutation(m, n, dtype=float):
+    k = np.zeros((m * n, m * n), dtype=dtype)
     for i in range(m):
         for j in range(n):
             k[j + i * n, i + j * m] = 1.0

@@ -7,8 +7,7 @@ from . import precedence as P
 from .base import (
     Printer,
     chain_segments,
-    fraction_text,
-    is_small_fraction,
+    fraction_parts,
     join_terms,
     number_text,
     segment_shape,
@@ -51,8 +50,9 @@ class TextPrinter(Printer):
         v = e.value
         if v < 0:
             return "-" + self._print_Const(E.Const(-v))
-        if is_small_fraction(v):
-            return f"{v.numerator}/{v.denominator}"
+        parts = fraction_parts(v)
+        if parts is not None:
+            return f"{parts[0]}/{parts[1]}"
         return number_text(v)
 
     def dims(self, shape) -> list[str]:
@@ -83,13 +83,14 @@ class TextPrinter(Printer):
             return "-" + self.paren(rest, P.PRODUCT)
         parts = []
         over = None  # N / 2 as written, never 0.5 * N
-        if is_small_fraction(coef) and num:
-            if coef.numerator != 1:
-                parts.append(str(coef.numerator))
-            over = str(coef.denominator)
+        split = fraction_parts(coef)
+        if split is not None and num:
+            if split[0] != "1":
+                parts.append(split[0])
+            over = str(split[1])
         elif coef != 1 or not num:
-            if coef.denominator != 1 and fraction_text(coef) is None and is_small_fraction(coef):
-                parts.append(f"({coef.numerator}/{coef.denominator})")
+            if split is not None:
+                parts.append(f"({split[0]}/{split[1]})")
             else:
                 parts.append(self._print(E.Const(coef)))
         for f in num:
@@ -208,6 +209,27 @@ class TextPrinter(Printer):
     def _print_KronContract(self, e):
         g, other, r, c, side = e.args
         return f"kron_contract_{side}({self._print(g)}, {self._print(other)})"
+
+    def _print_SizeOf(self, e):
+        return self.dim(e.dim)
+
+    def _print_Pi(self, e):
+        return "pi"
+
+    def _print_Index(self, e):
+        a, rows, cols = e.args
+        sels = [self.selector(s) for s in (rows, cols) if s is not None]
+        if E.is_matrix_shape(a.shape) and sels[-1] == ":":
+            sels.pop()  # X[i] is X[i, :]
+        return f"{self.paren(a, P.ATOM)}[{', '.join(sels)}]"
+
+    def selector(self, sel) -> str:
+        if sel[0] == "at":
+            return str(sel[1])
+        start, stop = (
+            "" if b is None else self.dim(b) if isinstance(b, E.Dim) else str(b) for b in sel[1:]
+        )
+        return f"{start}:{stop}"
 
 
 def text(e: E.Expr) -> str:
