@@ -70,6 +70,12 @@ CASES = [
     ("real-variable-in-complex-block", "H: (m, n) complex\nt: (n,)\ny: (m,) complex\n"
      "f = norm(y - H @ t)**2", "t",
      lambda H, t, y: jnp.sum(jnp.abs(y - H @ t) ** 2), False),
+    ("mvdr-output-power", "R: (n, n) hpd\na: (n,) complex\nP = 1 / (a.conj() @ solve(R, a))", "a",
+     lambda R, a: 1 / jnp.real(jnp.conj(a) @ jnp.linalg.solve(R, a)), False),
+    ("mvdr-output-power-wrt-R", "R: (n, n) hpd\na: (n,) complex\nP = 1 / (a.conj() @ solve(R, a))",
+     "R", lambda R, a: 1 / jnp.real(jnp.conj(a) @ jnp.linalg.solve(R, a)), True),
+    ("channel-capacity", "H: (m, n) complex\ns: ()\nC = logdet(eye(m) + H @ H.conj().T / s)", "H",
+     lambda H, s: jnp.linalg.slogdet(jnp.eye(H.shape[0]) + H @ jnp.conj(H).T / s)[1], False),
     ("hermitian-logdet", "R: (n, n) hpd\nS: (n, n) hermitian\nf = logdet(R) - trace(S @ R)", "R",
      lambda R, S: jnp.linalg.slogdet(R)[1] - jnp.real(jnp.trace(S @ R)), True),
     ("hermitian-quadratic", "R: (n, n) hermitian\nx: (n,) complex\nf = x.conj() @ R @ x", "R",

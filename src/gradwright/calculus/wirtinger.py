@@ -105,7 +105,9 @@ def is_hpd(e: E.Expr) -> bool:
 
 def _canonical_scalar(e: E.Expr) -> str:
     """A key equal for equal scalars up to transposing a scalar chain or a trace's argument."""
-    c, rest = E.split_coef(e)
+    from ..simplify import simplify  # solve(A, b) as inv(A) @ b, so chains line up
+
+    c, rest = E.split_coef(simplify(e))
     if rest is None:
         return f"{c}"
     keys = [rest.key()]
