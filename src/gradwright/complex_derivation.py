@@ -220,17 +220,20 @@ class ComplexDerivation(Derivation):
                 Step(
                     "differential",
                     split,
-                    "separate the parts along dZ and conj(dZ): df = tr(Aᵀ dZ) + tr(Bᵀ conj(dZ)),"
-                    " A = ∂f/∂Z, B = ∂f/∂conj(Z)",
+                    "separate the parts along the differential and along its conjugate: their "
+                    "coefficients are the Wirtinger derivatives",
                     lhs,
                 )
             )
         if not self.target_is_real:
             return steps
         form = E.add(*(_re_pairing(self._gradient(v), self._vars[v]) for v in self.variables))
-        why = "f is real, so B = conj(A): df = 2 Re tr(Bᵀ conj(dZ)) = Re tr(Gᴴ dZ), G = 2B"
+        why = (
+            "the target is real, so the two parts are conjugates of each other: the "
+            "differential is twice the real part of one of them"
+        )
         if any(is_hermitian_symbol(self._vars[v]) for v in self.variables):
-            why += "; for a Hermitian Z, dZ is Hermitian and G the Hermitian part of conj(A)"
+            why += " (a Hermitian variable has a Hermitian differential)"
         steps.append(Step("differential", form, why, lhs))
         for v in self.variables:
             sym = self._vars[v]
@@ -243,7 +246,10 @@ class ComplexDerivation(Derivation):
                 )
                 head = rf"\nabla_{{{symbol_latex(v)}}} {symbol_latex(self.target)}"
             else:
-                why = f"read off: {CONVENTION}"
+                why = (
+                    "read off the gradient: steepest ascent under the real inner product, "
+                    "as the left-hand side says"
+                )
                 head = _grad_head(self.target, v)
             steps.append(Step("gradient", self._gradient(v), why, head, v))
         return steps
@@ -256,7 +262,8 @@ class ComplexDerivation(Derivation):
                 lhs = (
                     f"∇{step.var} {self.target}"
                     if is_hermitian_symbol(sym)
-                    else f"∂{self.target}/∂Re {step.var} + i ∂{self.target}/∂Im {step.var}"
+                    else f"∂{self.target}/∂Re {step.var} + i ∂{self.target}/∂Im {step.var} "
+                    f"= 2 ∂{self.target}/∂conj({step.var})"
                     if is_complex_symbol(sym)
                     else f"∂{self.target}/∂{step.var}"
                 )

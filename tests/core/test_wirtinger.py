@@ -273,7 +273,9 @@ def test_every_displayed_step_is_the_same_differential():
     assert len(values) >= 4
     for v in values[1:]:
         assert v == pytest.approx(values[0], rel=1e-6, abs=1e-8)
-    assert "2 ∂f/∂conj(Z)" in d.steps[-1].rule and "Re tr(Gᴴ dZ)" in d.text_steps()
+    assert "steepest ascent" in d.steps[-1].rule
+    assert "∂J/∂Re w + i ∂J/∂Im w = 2 ∂J/∂conj(w) = 2 * (R @ w - p)" in d.text_steps()
+    assert r"2\frac{\partial J}{\partial \overline{w}}" in d.result_latex()
 
 
 # --- the finite-difference check of the notebook face --------------------------------------------

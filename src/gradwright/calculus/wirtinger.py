@@ -252,24 +252,24 @@ def normalize(e: E.Expr) -> E.Expr:
 RULES[ImagUnit] = Rule("constants have zero differential", True, lambda x, d: E.ZERO)
 
 
-@rule(Conj, "d conj(A) = conj(dA)", structural=True)
+@rule(Conj, "the differential of a conjugate is the conjugate of the differential", structural=True)
 def _conj_rule(x, d):
     return conj(d(x.args[0]))
 
 
-@rule(Real, "d Re(A) = (dA + conj(dA)) / 2")
+@rule(Real, "real part: half the differential plus its conjugate")
 def _real_rule(x, d):
     da = d(x.args[0])
     return E.mul(HALF, E.add(da, conj(da)))
 
 
-@rule(Imag, "d Im(A) = (dA - conj(dA)) / (2i)")
+@rule(Imag, "imaginary part: the differential minus its conjugate, over 2i")
 def _imag_rule(x, d):
     da = d(x.args[0])
     return E.mul(E.Const(Fraction(-1, 2)), I_UNIT, E.sub(da, conj(da)))
 
 
-@rule(Abs, "modulus rule: d|a| = (conj(a) da + a conj(da)) / (2|a|)")
+@rule(Abs, "modulus rule")
 def _abs_rule(x, d):
     a = x.args[0]
     da = d(a)
@@ -307,8 +307,8 @@ def _complex_logdet(x, d):
 
 #: rules that replace the real ones when the argument may be complex
 COMPLEX_RULES: dict = {
-    E.Norm: Rule("norm rule: d‖a‖ = Re <a, da> / ‖a‖", False, _complex_norm),
-    E.LogDet: Rule("log|det| rule: d log|det A| = Re tr(A⁻¹ dA)", False, _complex_logdet),
+    E.Norm: Rule("norm rule for complex arrays", False, _complex_norm),
+    E.LogDet: Rule("log-determinant rule for the log of the modulus", False, _complex_logdet),
 }
 
 
