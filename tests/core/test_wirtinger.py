@@ -351,3 +351,17 @@ def test_abs_of_a_real_block_is_the_absolute_value_and_refuses_the_complex_step(
     want = np.sign(x - 1) + np.sign(np.sum(x))
     assert np.allclose(d.gradient_function()(**arrays), want)
     assert np.isrealobj(d.gradient_function()(**arrays))
+
+
+def test_text_round_trip_of_complex_expressions():
+    from gradwright.language import parse_block
+
+    decl = "H: (m, n) complex\nx: (n,) complex\ny: (m,) complex\nR: (n, n) hermitian\n"
+    body = (
+        "norm(y - H @ x)**2 + x.conj() @ R @ x + sum(abs(x)**2) + real(vdot(H @ x, y))"
+        " + 2j * imag(x @ x) + abs(det(R))"
+    )
+    e = parse_block(decl + "f = " + body).expr
+    for cls in (E.Conj, E.Real, E.Imag, E.Abs, E.ImagUnit):
+        assert any(type(n) is cls for n in E.walk(e)), cls
+    assert parse_block(decl + "f = " + text(e)).expr == e
