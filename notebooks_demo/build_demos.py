@@ -376,6 +376,131 @@ print("squared error before:", squared_error(grip_pack(W1=W1, W2=W2))[0], "after
     ),
 ]
 
+FERRY = [
+    (
+        "md",
+        """# Ferry ticket classes: a multinomial logit, from derivative to standard errors
+
+A coastal ferry line sells four ticket classes: deck, saloon, cabin and lounge. For each of
+`n` passengers we know the trip length, how far the fare sat from its usual level, the size of
+the travelling group and whether the crossing ran at night. We model the class chosen by a
+multinomial logit with deck as the base class: a weight matrix `W` (features by the three other
+classes) and an intercept per class `b`. gradwright derives the gradient, the check panel tests
+it, SciPy fits the model with the block Hessian over `W` and `b` together, and the standard errors
+come from that Hessian; a reference statistics library fits the same invented data.""",
+    ),
+    (
+        "code",
+        """import numpy as np
+import statsmodels.api as sm
+from IPython.display import Math
+from scipy import optimize
+
+%load_ext gradwright""",
+    ),
+    (
+        "code",
+        """# Invented data: 600 passengers, standardized features.
+rng = np.random.default_rng(1907)
+n_passengers = 600
+classes = ["deck", "saloon", "cabin", "lounge"]
+trip_hours = rng.uniform(0.5, 6.0, n_passengers)
+fare_gap = rng.normal(0.0, 1.0, n_passengers)
+group_size = rng.integers(1, 6, n_passengers).astype(float)
+night = rng.integers(0, 2, n_passengers).astype(float)
+X = np.column_stack([trip_hours, fare_gap, group_size, night])
+X = (X - X.mean(axis=0)) / X.std(axis=0)
+true_W = np.array([[0.2, 0.9, 0.6], [-0.5, -0.8, -1.1], [0.3, -0.2, -0.6], [0.1, 1.2, 0.4]])
+true_b = np.array([0.4, -0.9, -1.3])
+logits = np.column_stack([np.zeros(n_passengers), X @ true_W + true_b])
+prob = np.exp(logits - logits.max(axis=1, keepdims=True))
+prob /= prob.sum(axis=1, keepdims=True)
+choice = np.array([rng.choice(4, p=row) for row in prob])
+Y = np.eye(4)[choice][:, 1:]  # one-hot, the base class dropped
+dict(zip(classes, np.bincount(choice)))""",
+    ),
+    (
+        "md",
+        """The negative log-likelihood: each passenger contributes the log of the normalizer
+`1 + Σ exp(z)` over the non-base classes, minus the logit of the class chosen.""",
+    ),
+    (
+        "code",
+        """%%derive W b
+X: (n, p)          # features, one row per passenger
+Y: (n, k)          # the class chosen, one-hot without the base class
+W: (p, k)          # weights
+b: (k,)            # intercepts
+Z = X @ W + b
+nll = sum(log(1 + exp(Z) @ ones(k))) - sum(Y * Z)""",
+    ),
+    (
+        "md",
+        """The check panel compares `grad_nll` with finite differences at random inputs:""",
+    ),
+    ("code", """print(nll_check.run().summary())"""),
+    (
+        "md",
+        """### The fit
+
+`objective` packs `W` (column by column) and `b` into one vector; the constants come
+positionally, as `minimize(..., args=(X, Y))` passes them. `obj.hess` is the dense block Hessian
+over that vector, the cross block between `W` and `b` included.""",
+    ),
+    (
+        "code",
+        """obj = nll_derivation.objective(args=("X", "Y"))
+x0 = obj.pack(W=np.zeros((4, 3)), b=np.zeros(3))
+print(obj.describe())
+fit = optimize.minimize(obj, x0, args=(X, Y), jac=True, hess=obj.hess, method="trust-exact")
+estimate = obj.unpack(fit.x)
+print(fit.message, "after", fit.nit, "iterations")
+estimate""",
+    ),
+    ("md", "The mixed second derivative that couples the two parameter groups:"),
+    ("code", """Math(nll_derivation.second_derivative("W", "b").latex())"""),
+    (
+        "md",
+        """### Standard errors
+
+At the minimum of a negative log-likelihood, the inverse of the Hessian estimates the covariance
+of the estimates; the standard errors are the square roots of its diagonal, shaped like the
+variables.""",
+    ),
+    (
+        "code",
+        """se = nll_derivation.standard_errors(X=X, Y=Y, **estimate)
+se""",
+    ),
+    (
+        "md",
+        """### Against a reference library
+
+statsmodels' `MNLogit` on the same data, with an intercept column first (so its first row holds
+the intercepts):""",
+    ),
+    (
+        "code",
+        """reference = sm.MNLogit(choice, sm.add_constant(X)).fit(method="newton", disp=0)
+params, bse = np.asarray(reference.params), np.asarray(reference.bse)
+print("largest difference in W:", np.max(np.abs(estimate["W"] - params[1:])))
+print("largest difference in b:", np.max(np.abs(estimate["b"] - params[0])))
+print("largest difference in the standard errors of W:", np.max(np.abs(se["W"] - bse[1:])))
+print("largest difference in the standard errors of b:", np.max(np.abs(se["b"] - bse[0])))""",
+    ),
+    (
+        "md",
+        """The fitted probabilities at the estimate, read from the definitions of the block:""",
+    ),
+    (
+        "code",
+        """values = nll_derivation.values(X=X, Y=Y, **estimate)
+Z_fit = np.column_stack([np.zeros(n_passengers), values["Z"]])
+fitted = np.exp(Z_fit) / np.exp(Z_fit).sum(axis=1, keepdims=True)
+dict(zip(classes, fitted.mean(axis=0).round(3)))""",
+    ),
+]
+
 ANTENNA = [
     (
         "md",
@@ -487,6 +612,7 @@ DEMOS = {
     "store_week_demand.ipynb": DEMAND,
     "bridge_strain_gls.ipynb": BRIDGE,
     "robot_arm_jacobians.ipynb": ROBOT,
+    "ferry_ticket_choice.ipynb": FERRY,
     "greenhouse_antenna_array.ipynb": ANTENNA,
 }
 

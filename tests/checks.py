@@ -90,6 +90,9 @@ def sizes_for(derivation, sizes: dict | None = None) -> dict:
 
 def _sample(shape, structure, rng, positive=False):
     words = set(structure)
+    if len(shape) == 2 and "lower" in words:  # a Cholesky-like factor: positive diagonal
+        n = shape[0]
+        return np.tril(rng.standard_normal((n, n)), -1) + np.diag(rng.uniform(0.5, 2.0, n))
     if len(shape) == 2 and words & {"spd", "symmetric", "diagonal", "orthogonal", "invertible"}:
         n = shape[0]
         if "spd" in words:
@@ -140,13 +143,16 @@ def random_direction(info, value, rng):
 
 
 def project(g, structure):
-    """The symmetric part (symmetric/spd) or the diagonal part (diagonal) of a matrix."""
+    """The symmetric part (symmetric/spd), the diagonal part (diagonal) or the lower triangle
+    (lower) of a matrix."""
     g = np.asarray(g)
     if g.ndim != 2:
         return g
     words = set(structure)
     if "diagonal" in words:
         return np.diag(np.diag(g))
+    if "lower" in words:
+        return np.tril(g)
     if words & {"symmetric", "spd"}:
         return (g + g.T) / 2
     return g
@@ -360,6 +366,72 @@ _JAX_FUNCS = {
 }
 
 
+# --- reductions over an axis and the NumPy entrywise functions (NumPy's/SciPy's meaning) ------
+
+
+def _softmax_ref(a, axis=None):
+    # scipy.special.softmax reads axis=None as every entry (jax.nn.softmax's default is -1)
+    return jax.nn.softmax(a, axis=axis)
+
+
+def _log_softmax_ref(a, axis=None):
+    return jax.nn.log_softmax(a, axis=axis)
+
+
+def _max_weights_ref(op):
+    def weights(a, axis=None):
+        best = (jnp.max if op == "max" else jnp.min)(a, axis=axis, keepdims=True)
+        hits = (a == best).astype(a.dtype)
+        return hits / jnp.sum(hits, axis=axis, keepdims=True)
+
+    return weights
+
+
+#: functions read with keyword arguments (axis=, keepdims=) and the functions NumPy/SciPy add
+JAX_NUMPY_MORE = {
+    "sum": lambda a, axis=None, keepdims=False: jnp.sum(a, axis=axis, keepdims=keepdims),
+    "mean": lambda a, axis=None, keepdims=False: jnp.mean(a, axis=axis, keepdims=keepdims),
+    "max": lambda a, axis=None, keepdims=False: jnp.max(a, axis=axis, keepdims=keepdims),
+    "min": lambda a, axis=None, keepdims=False: jnp.min(a, axis=axis, keepdims=keepdims),
+    "norm": lambda a, axis=None, keepdims=False: jnp.sqrt(
+        jnp.sum(a * a, axis=axis, keepdims=keepdims)
+    ),
+    "logsumexp": lambda a, axis=None, keepdims=False: jax.scipy.special.logsumexp(
+        a, axis=axis, keepdims=keepdims
+    ),
+    "softmax": _softmax_ref,
+    "log_softmax": _log_softmax_ref,
+    "max_weights": _max_weights_ref("max"),
+    "min_weights": _max_weights_ref("min"),
+    "maximum": jnp.maximum,
+    "minimum": jnp.minimum,
+    "abs": jnp.abs,
+    "sign": jnp.sign,
+    "cosh": jnp.cosh,
+    "sinh": jnp.sinh,
+    "arctan": jnp.arctan,
+    "log1p": jnp.log1p,
+    "expm1": jnp.expm1,
+    "square": jnp.square,
+    "reciprocal": lambda a: 1.0 / a,
+    "erf": jax.scipy.special.erf,
+    "gammaln": jax.scipy.special.gammaln,
+    "digamma": jax.scipy.special.digamma,
+    "polygamma": lambda n, a: jax.scipy.special.polygamma(int(n), a),
+    "heaviside": lambda a, h: jnp.heaviside(a, h),
+}
+
+
+def _keyword_literal(node):
+    import ast
+
+    if isinstance(node, ast.UnaryOp) and isinstance(node.op, ast.USub):
+        return -_keyword_literal(node.operand)
+    if isinstance(node, ast.Constant):
+        return node.value
+    raise UnreadableBlock(f"not a literal keyword value: {ast.dump(node)[:60]}")
+
+
 class UnreadableBlock(Exception):
     """The test-side reader cannot read the block (it is not in the language as NumPy reads it)."""
 
@@ -435,8 +507,11 @@ def jax_reference(block_text: str, sizes: dict):
                 return jnp.asarray(k)
             if name == "mpow":
                 return jnp.linalg.matrix_power(ev(node.args[0], env), int(node.args[1].value))
-            if name in _JAX_FUNCS:
+            if name in _JAX_FUNCS and not node.keywords:
                 return _JAX_FUNCS[name](*[ev(a, env) for a in node.args])
+            if name in JAX_NUMPY_MORE:
+                kwargs = {kw.arg: _keyword_literal(kw.value) for kw in node.keywords}
+                return JAX_NUMPY_MORE[name](*[ev(a, env) for a in node.args], **kwargs)
         raise UnreadableBlock(f"cannot read {ast.dump(node)[:80]}")
 
     def ref(**arrays):

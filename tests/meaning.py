@@ -102,6 +102,70 @@ JAX_NAMES = _names(
     },
 )
 
+
+def _numpy_more_names(xp, special) -> dict:
+    """Reductions over an axis, softmax over an axis, maximum/minimum and the entrywise
+    functions of NumPy/SciPy (language/calls_reductions.py, calls_entrywise.py)."""
+
+    def weights(op):
+        def w(a, axis=None):
+            best = (xp.max if op == "max" else xp.min)(a, axis=axis, keepdims=True)
+            hits = (a == best) * 1.0
+            return hits / xp.sum(hits, axis=axis, keepdims=True)
+
+        return w
+
+    return {
+        "mean": xp.mean,
+        "max": xp.max,
+        "min": xp.min,
+        "log_softmax": special["log_softmax"],
+        "maximum": xp.maximum,
+        "minimum": xp.minimum,
+        "abs": xp.abs,
+        "sign": xp.sign,
+        "cosh": xp.cosh,
+        "sinh": xp.sinh,
+        "arctan": xp.arctan,
+        "log1p": xp.log1p,
+        "expm1": xp.expm1,
+        "square": xp.square,
+        "reciprocal": lambda a: 1.0 / a,
+        "erf": special["erf"],
+        "gammaln": special["gammaln"],
+        "digamma": special["digamma"],
+        "polygamma": special["polygamma"],
+        "heaviside": xp.heaviside,
+        "max_weights": weights("max"),
+        "min_weights": weights("min"),
+    }
+
+
+NUMPY_NAMES.update(
+    _numpy_more_names(
+        np,
+        {
+            "log_softmax": scipy.special.log_softmax,
+            "erf": scipy.special.erf,
+            "gammaln": scipy.special.gammaln,
+            "digamma": scipy.special.digamma,
+            "polygamma": scipy.special.polygamma,
+        },
+    )
+)
+JAX_NAMES.update(
+    _numpy_more_names(
+        jnp,
+        {
+            "log_softmax": jax.nn.log_softmax,
+            "erf": jax.scipy.special.erf,
+            "gammaln": jax.scipy.special.gammaln,
+            "digamma": jax.scipy.special.digamma,
+            "polygamma": jax.scipy.special.polygamma,
+        },
+    )
+)
+
 _DECL = re.compile(r"^\s*([A-Za-z_]\w*)\s*:(?!=)")
 _DEF = re.compile(r"^\s*([A-Za-z_]\w*)\s*=(?!=)(.*)$", re.S)
 

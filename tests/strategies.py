@@ -31,7 +31,94 @@ class DrawnBlock:
     ops: tuple = field(default=(), compare=False)  # operation names used, for statistics
 
 
-class _Gen:
+class _NumpyMoreOps:
+    """Draws of reductions over an axis (axis=, negative axes, keepdims=), softmax and
+    log_softmax over an axis, maximum/minimum and the NumPy entrywise functions."""
+
+    ENTRYWISE_MORE = [
+        "abs", "cosh", "sinh", "arctan", "expm1", "square", "erf", "log1p", "reciprocal",
+        "gammaln", "maximum", "minimum",
+    ]  # fmt: skip
+    SCALAR_MORE = ["reduce_all", "sum_of_axis_reduce"]
+    VECTOR_MORE = ["axis_reduce", "log_softmax_vec"]
+    MATRIX_MORE = ["softmax_axis", "keepdims_outer"]
+    REDUCERS = ["sum", "mean", "max", "min", "logsumexp", "norm"]
+
+    def _more_func(name):
+        def op(self, s, k):
+            return f"{name}({self.expr(s, k)})"
+
+        return op
+
+    op_abs = _more_func("abs")
+    op_cosh = _more_func("cosh")
+    op_sinh = _more_func("sinh")
+    op_arctan = _more_func("arctan")
+    op_expm1 = _more_func("expm1")
+    op_square = _more_func("square")
+    op_erf = _more_func("erf")
+    del _more_func
+
+    def op_log1p(self, s, k):
+        return f"log1p({self.positive(s, k)})"
+
+    def op_reciprocal(self, s, k):
+        return f"reciprocal({self.positive(s, k)})"
+
+    def op_gammaln(self, s, k):
+        return f"gammaln({self.positive(s, k)})"
+
+    def _extremum(self, name, s, k):
+        other = self.draw(st.sampled_from(["same", "scalar", "zero"]))
+        b = {"same": lambda: self.expr(s, k), "scalar": lambda: self.expr((), k)}.get(
+            other, lambda: "0"
+        )()
+        a = self.expr(s, k)
+        return f"{name}({a}, {b})" if self.draw(st.booleans()) else f"{name}({b}, {a})"
+
+    def op_maximum(self, s, k):
+        return self._extremum("maximum", s, k)
+
+    def op_minimum(self, s, k):
+        return self._extremum("minimum", s, k)
+
+    def _reducer(self):
+        return self.draw(st.sampled_from(self.REDUCERS))
+
+    def op_reduce_all(self, s, k):
+        return f"{self._reducer()}({self.expr(self._array_shape(), k)})"
+
+    def op_sum_of_axis_reduce(self, s, k):
+        shape = (self.dim(), self.dim())
+        axis = self.draw(st.sampled_from(["0", "1", "-1", "-2"]))
+        return f"sum({self._reducer()}({self.expr(shape, k)}, axis={axis}))"
+
+    def op_axis_reduce(self, s, k):
+        c = self.dim()
+        if self.draw(st.booleans()):
+            axis = self.draw(st.sampled_from(["1", "-1"]))
+            return f"{self._reducer()}({self.expr((s[0], c), k)}, axis={axis})"
+        axis = self.draw(st.sampled_from(["0", "-2"]))
+        return f"{self._reducer()}({self.expr((c, s[0]), k)}, axis={axis})"
+
+    def op_log_softmax_vec(self, s, k):
+        return f"log_softmax({self.expr(s, k)})"
+
+    def op_softmax_axis(self, s, k):
+        name = self.draw(st.sampled_from(["softmax", "log_softmax"]))
+        axis = self.draw(st.sampled_from(["0", "1", "-1", "None"]))
+        return f"{name}({self.expr(s, k)}, axis={axis})"
+
+    def op_keepdims_outer(self, s, k):
+        c = self.dim()
+        if self.draw(st.booleans()):
+            inner = f"{self._reducer()}({self.expr((s[0], c), k)}, axis=1, keepdims=True)"
+            return f"({inner} @ ones(1, {s[1]}))"
+        inner = f"{self._reducer()}({self.expr((c, s[1]), k)}, axis=0, keepdims=True)"
+        return f"(ones({s[0]}, 1) @ {inner})"
+
+
+class _Gen(_NumpyMoreOps):
     """Draws one block: keeps the declared symbols, the definitions and the names used."""
 
     def __init__(self, draw, max_depth: int, broadcast_add: bool, vector_kron: bool):
@@ -75,7 +162,9 @@ class _Gen:
             table = self.VECTOR_OPS
         else:
             table = self.MATRIX_OPS if shape[0] != shape[1] else self.SQUARE_OPS
-        table = table + self.ENTRYWISE_OPS
+        table = table + self.ENTRYWISE_OPS + self.ENTRYWISE_MORE
+        more = (self.SCALAR_MORE, self.VECTOR_MORE, self.MATRIX_MORE)[min(len(shape), 2)]
+        table = table + more
         name = self.draw(st.sampled_from(table))
         self.ops.append(name)
         return getattr(self, "op_" + name)(shape, depth - 1)

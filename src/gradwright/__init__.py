@@ -14,7 +14,7 @@ from __future__ import annotations
 import numbers
 
 from .derivation import Derivation, Step, SymbolInfo
-from .errors import FormulaError, NotSupportedError
+from .errors import FormulaError, NotSupportedError, at_the_boundary
 
 __all__ = [
     "Derivation",
@@ -31,11 +31,22 @@ __version__ = "0.1.0"
 MAX_EXPANDED_SIZE = 100_000
 
 
-def derive(text: str, wrt, *, shapes: dict | None = None, sizes: dict | None = None) -> Derivation:
+@at_the_boundary
+def derive(
+    text: str,
+    wrt,
+    *,
+    shapes: dict | None = None,
+    sizes: dict | None = None,
+    parameterize: dict | None = None,
+) -> Derivation:
     """Derive a block (or one expression with `shapes`) with respect to the variables `wrt`.
 
     `wrt` is a name or a list of names of declared symbols; every other symbol is a constant.
     `sizes` optionally gives typical dim sizes for the generated code's cost model.
+    `parameterize` fits variables through unconstrained ones: `{"S": "cholesky"}` makes the
+    variable `S_chol` (lower-triangular, S = S_chol S_cholᵀ), `{"s": "log"}` makes `log_s`
+    (s = exp(log_s)); the derivation then shows the chain rule through S or s.
     """
     from .expr import expanded_size
     from .language import parse_block
@@ -46,6 +57,11 @@ def derive(text: str, wrt, *, shapes: dict | None = None, sizes: dict | None = N
         wrt_list = list(wrt)
     else:
         raise FormulaError(f"wrt must be a name or a list of names, got {type(wrt).__name__}")
+    if parameterize:
+        from .parameterize import rewrite
+
+        text, wrt_list = rewrite(text, shapes, wrt_list, parameterize)
+        shapes = None
     block = parse_block(text, shapes=shapes)
     size = expanded_size(block.expr, MAX_EXPANDED_SIZE)
     if size > MAX_EXPANDED_SIZE:

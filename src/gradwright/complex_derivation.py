@@ -274,9 +274,9 @@ class ComplexDerivation(Derivation):
 
     # --- generated code --------------------------------------------------------------------------
 
-    def _specs(self) -> list:
+    def _specs(self, sizes: dict | None = None) -> list:
         tgt_shape = self.expr.shape
-        cost = self._cost()
+        cost = self._cost(sizes)
         gen = C.CodeGen(self.block.declarations, self.arguments(), cost, use_cholesky=True)
         gen.complex_directions = True
         value = self.expr

@@ -6,6 +6,10 @@ Everything is computed from the one differential value `d(f)`, lazily, and cache
 from __future__ import annotations
 
 import functools
+import inspect
+import itertools
+import linecache
+import types
 from dataclasses import dataclass
 
 from . import expr as E
@@ -16,6 +20,8 @@ from .matrix_checks import adjust_samples
 from .matrix_functions import NODES as _MATRIX_NODES
 from .printing import latex, symbol_latex, text
 from .printing import numpy_code as C
+from .printing.latex import differential_latex
+from .printing.structure import known_spd
 from .sampling import default_sizes, needs_positive, sample_inputs
 from .simplify import simplify
 
@@ -215,7 +221,7 @@ class Derivation:
     @functools.cached_property
     def steps(self) -> list[Step]:
         wrt = frozenset(self.variables)
-        lhs = r"\mathrm{d}" + _name_latex(self.target)
+        lhs = differential_latex(_name_latex(self.target))
         steps = [Step("differential", E.D(E.Named(self.target, self.expr)), "", lhs)]
         current = (
             E.D(self.expr)
@@ -250,7 +256,9 @@ class Derivation:
                 sym = self._vars[v]
                 why = "read off the gradient"
                 raw = self._raw_gradient(v)
-                if E.is_matrix_shape(sym.shape) and (sym.structure & E.SYMMETRIC_WORDS):
+                if "lower" in sym.structure and E.tril(raw) != raw:
+                    why = f"keep the lower triangle, since {v} is lower-triangular"
+                elif E.is_matrix_shape(sym.shape) and (sym.structure & E.SYMMETRIC_WORDS):
                     if "diagonal" in sym.structure:
                         why = f"keep the diagonal, since {v} is diagonal"
                     elif not E.is_symmetric(raw):
@@ -282,7 +290,7 @@ class Derivation:
                         "differential",
                         E.add(*parts),
                         "vectorize: vec(A dX B) = (Bᵀ ⊗ A) vec(dX)",
-                        r"\operatorname{vec}(\mathrm{d}" + _name_latex(self.target) + ")",
+                        r"\operatorname{vec}(" + differential_latex(_name_latex(self.target)) + ")",
                     )
                 )
                 for v in self.variables:
@@ -370,20 +378,24 @@ class Derivation:
     def supports_complex_step(self) -> bool:
         for node in E.walk(self.expr):
             t = type(node)
-            if t in (E.LogDet, E.Norm, E.Abs) or (t is E.Func and node.name == "softplus"):
+            # |x + ih| and sign(x + ih) are not analytic: the complex step would read 0
+            nonanalytic = ("softplus", "abs", "sign")
+            if t in (E.LogDet, E.Norm, E.Abs) or (t is E.Func and node.name in nonanalytic):
                 return False
-            if t in (E.Solve, E.Inverse) and E.is_spd(node.args[0]):
+            if t in (E.Solve, E.Inverse) and known_spd(node.args[0]):  # Cholesky: not analytic
                 return False
             if t in _MATRIX_NODES:  # eigh, cholesky and SciPy's solvers: no complex step
                 return False
         return True
 
-    def _cost(self) -> C.CostModel:
-        return C.CostModel(C.guess_sizes(self.expr, self.size_hints), hinted=self.size_hints)
+    def _cost(self, sizes: dict | None = None) -> C.CostModel:
+        # dims found large at call time (chunked Dask axes) yield to the user's own hints
+        hints = {**(sizes or {}), **self.size_hints}
+        return C.CostModel(C.guess_sizes(self.expr, hints), hinted=hints)
 
-    def _specs(self) -> list:
+    def _specs(self, sizes: dict | None = None) -> list:
         tgt_shape = self.expr.shape
-        cost = self._cost()
+        cost = self._cost(sizes)
         gen = C.CodeGen(self.block.declarations, self.arguments(), cost, use_cholesky=True)
         value = C.lower(self.expr, cost)
         specs = [
@@ -509,38 +521,55 @@ class Derivation:
                 )
         return gen, specs
 
-    def source(self) -> str:
-        """The generated Python module (NumPy; SciPy only for spd Cholesky factors)."""
+    def source(self, backend: str = "numpy", sizes: dict | None = None) -> str:
+        """The generated Python module: NumPy (SciPy only for spd Cholesky factors), or with
+        `backend="torch"`, `"jax"`, `"cupy"`, `"dask"` or `"array_api"` (any of them, chosen by
+        the arguments) a module computing with that library through array-api-compat.
+        `sizes` (dim -> typical size) steers the order of products, like derive's `sizes`.
+
+        >>> from gradwright import derive
+        >>> d = derive("X: (n, p)\\nw: (p,)\\ny: (n,)\\nf = sum((X @ w - y)**2)", wrt="w")
+        >>> "def gradient_w(" in d.source(backend="torch")
+        True
+        """
+        if backend != "numpy" or sizes:
+            from .backends import module_source
+
+            return module_source(self, backend, sizes)
         if self._source is None:
-            try:
-                gen, specs = self._specs()
-                funcs = [gen.function(s) for s in specs]
-            except ShapeError as err:  # a safety net: no internal error reaches the user
-                raise NotSupportedError(
-                    f"not supported yet: generating NumPy code for this block ({err})"
-                ) from None
-            header = (
-                '"""NumPy code generated by gradwright from the block:\n\n'
-                + "\n".join(
-                    "    " + line
-                    for line in self.text_block.strip("\n")
-                    .replace("\\", "\\\\")
-                    .replace('"""', "'''")
-                    .split("\n")
-                )
-                + (
-                    f"\n\nVariables: {', '.join(self.variables)}. Arrays are passed by keyword.\n"
-                    '"""'
-                )
-            )
-            self._source = C.module(header, funcs, gen.helpers, gen.uses_scipy)
+            self._source = self._numpy_source()
         return self._source
+
+    def _numpy_source(self, sizes: dict | None = None) -> str:
+        try:
+            gen, specs = self._specs(sizes)
+            funcs = [gen.function(s) for s in specs]
+        except ShapeError as err:  # a safety net: no internal error reaches the user
+            raise NotSupportedError(
+                f"not supported yet: generating NumPy code for this block ({err})"
+            ) from None
+        header = (
+            '"""NumPy code generated by gradwright from the block:\n\n'
+            + "\n".join(
+                "    " + line
+                for line in self.text_block.strip("\n")
+                .replace("\\", "\\\\")
+                .replace('"""', "'''")
+                .split("\n")
+            )
+            + (f'\n\nVariables: {", ".join(self.variables)}. Arrays are passed by keyword.\n"""')
+        )
+        return C.module(header, funcs, gen.helpers, gen.uses_scipy)
 
     def _namespace(self) -> dict:
         if self._functions is None:
             ns: dict = {"__name__": f"gradwright_generated_{self.target}"}
+            source = self.source()
+            filename = f"<gradwright {self.target} #{next(_GENERATED)}>"
+            # tracebacks and inspect.getsource show the generated lines, not "no source"
+            linecache.cache[filename] = (len(source), None, source.splitlines(True), filename)
             # our own printer wrote this text from the tree; no user text is executed
-            exec(compile(self.source(), f"<gradwright {self.target}>", "exec"), ns)  # noqa: S102
+            exec(compile(source, filename, "exec"), ns)  # noqa: S102
             self._functions = ns
         return self._functions
 
@@ -548,7 +577,9 @@ class Derivation:
         ns = self._namespace()
         if name not in ns:
             raise NotSupportedError(f"not supported yet: {name.replace('_', ' ')} for this target")
-        return ns[name]
+        from .backends import dispatching  # NumPy arguments go straight to ns[name]
+
+        return _arrays_by_keyword(dispatching(self, name, ns))
 
     def function(self):
         """f(**arrays) -> the value of the target."""
@@ -687,6 +718,8 @@ def _api_boundary(method):
     def wrapper(self, *args, **kwargs):
         try:
             return method(self, *args, **kwargs)
+        except FormulaError as err:  # the user's message without gradwright's frames behind it
+            raise err.with_traceback(None) from None
         except (ShapeError, AssertionError) as err:
             what = method.__name__.replace("_", " ")
             raise NotSupportedError(f"not supported yet: {what} for this block ({err})") from None
@@ -698,7 +731,8 @@ for _name in (
     "differential", "gradient", "jacobian", "latex", "text_steps", "result_latex", "to_latex",
     "source", "function", "gradient_function", "value_and_gradient_function", "jvp_function",
     "vjp_function", "jacobian_function", "hvp_function", "hessian_function", "stationary_point",
-    "objective", "second_derivative", "values", "standard_errors",
+    "objective", "second_derivative", "values", "standard_errors", "sample_inputs",
+    "to_notebook",
 ):  # fmt: skip
     setattr(Derivation, _name, _api_boundary(getattr(Derivation, _name)))
 Derivation.steps = functools.cached_property(_api_boundary(Derivation.steps.func))
@@ -708,13 +742,41 @@ Derivation.steps.__set_name__(Derivation, "steps")
 # ---------------------------------------------------------------------------------------------
 
 
+_GENERATED = itertools.count(1)
+
+
+def _arrays_by_keyword(fn):
+    """fn with a call that passes arrays by position refused in words that say what to do."""
+    params = inspect.signature(fn).parameters.values()
+    positional = [p.name for p in params if p.kind is not p.KEYWORD_ONLY]
+    keywords = [p.name for p in params if p.kind is p.KEYWORD_ONLY]
+
+    def call(*args, **arrays):
+        if len(args) > len(positional):
+            shown = ", ".join([*positional, *(f"{k}=..." for k in keywords)])
+            raise TypeError(
+                f"{fn.__name__}() got {len(args)} positional arguments: pass arrays by "
+                f"keyword: {fn.__name__}({shown})"
+            ) from None
+        return fn(*args, **arrays)
+
+    # the wrapper lives in the generated module's globals, like the function it stands for
+    # (callers read state such as the last chosen order from `g.__globals__`)
+    wrapped = types.FunctionType(
+        call.__code__, fn.__globals__, fn.__name__, call.__defaults__, call.__closure__
+    )
+    return functools.update_wrapper(wrapped, fn)
+
+
 def _words(sym: E.Symbol) -> tuple:
     implied = set()
     if "spd" in sym.structure:
         implied |= {"symmetric", "invertible", "square"}
     if "orthogonal" in sym.structure:
         implied |= {"invertible", "square"}
-    order = ("symmetric", "spd", "diagonal", "positive", "orthogonal", "square", "invertible")
+    order = (
+        "symmetric", "spd", "diagonal", "lower", "positive", "orthogonal", "square", "invertible",
+    )  # fmt: skip
     return tuple(w for w in order if w in sym.structure and w not in implied)
 
 
@@ -754,6 +816,8 @@ def _project(g: E.Expr, sym: E.Symbol) -> E.Expr:
         return g
     if "diagonal" in sym.structure:
         return simplify(E.diagm(E.diag(g)))
+    if "lower" in sym.structure:
+        return simplify(E.tril(g))
     if sym.structure & E.SYMMETRIC_WORDS:
         return simplify(E.sym_part(g))
     return g

@@ -9,7 +9,9 @@ from __future__ import annotations
 import numpy as np
 
 from . import expr as E
+from .entrywise import EXTRA_ENTRYWISE
 from .errors import FormulaError
+from .evaluate_axis import AxisEvaluator
 
 __all__ = ["evaluate", "to_internal", "to_user"]
 
@@ -54,7 +56,8 @@ def _softplus(x):
 
 
 def _sigmoid(x):
-    return 1.0 / (1.0 + np.exp(-x))
+    # the tanh form never overflows (1 / (1 + exp(-x)) does at x = -710)
+    return 0.5 * (1.0 + np.tanh(0.5 * x))
 
 
 FUNCS = {
@@ -66,10 +69,11 @@ FUNCS = {
     "tanh": np.tanh,
     "sigmoid": _sigmoid,
     "softplus": _softplus,
+    **{name: spec.evaluate for name, spec in EXTRA_ENTRYWISE.items()},
 }
 
 
-class _Evaluator:
+class _Evaluator(AxisEvaluator):
     def __init__(self, arrays, differentials, dims):
         self.arrays = arrays
         self.differentials = differentials or {}
@@ -185,6 +189,9 @@ class _Evaluator:
 
     def _Diagm(self, e):
         return np.diag(self.ev(e.args[0])[:, 0])
+
+    def _Tril(self, e):
+        return np.tril(self.ev(e.args[0]))
 
     def _Sum(self, e):
         return np.array([[np.sum(self.ev(e.args[0]))]])

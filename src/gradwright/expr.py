@@ -12,6 +12,7 @@ from collections.abc import Iterable
 from dataclasses import dataclass
 from fractions import Fraction
 
+from .entrywise import EXTRA_ENTRYWISE
 from .errors import ShapeError
 
 # ---------------------------------------------------------------------------------------------
@@ -431,7 +432,9 @@ class Power(Expr):
         return self.args[0].shape
 
 
-ELEMENTWISE = ("exp", "log", "sqrt", "sin", "cos", "tanh", "sigmoid", "softplus")
+ELEMENTWISE = ("exp", "log", "sqrt", "sin", "cos", "tanh", "sigmoid", "softplus") + tuple(
+    EXTRA_ENTRYWISE
+)
 
 
 class Func(Expr):
@@ -555,6 +558,18 @@ class Diagm(Expr):
         if not is_col(x.shape):
             raise ShapeError(f"diagm needs a vector, got a {describe(x)}")
         return (x.shape[0], x.shape[0])
+
+
+class Tril(Expr):
+    """The lower triangle of a matrix, diagonal included (NumPy's `tril`); the rest zero."""
+
+    __slots__ = ()
+
+    def _infer_shape(self):
+        a = self.args[0]
+        if not is_matrix_shape(a.shape):
+            raise ShapeError(f"tril needs a matrix, got a {describe(a)}")
+        return a.shape
 
 
 class Sum(Expr):
@@ -710,6 +725,7 @@ NODE_CLASSES = (
     Symbol, Differential, Const, Identity, Ones, Zero, Commutation, Add, Mul, MatMul, Transpose,
     Power, Func, Trace, Det, LogDet, Inverse, Solve, Kron, Vec, Unvec, Diag, Diagm, Sum, Norm,
     LogSumExp, Softmax, MatPow, Named, D, KronContract,
+    Tril,
 )  # fmt: skip
 NODE_CLASSES += (SizeOf, Pi, Index)
 
@@ -889,7 +905,6 @@ def mul(*factors: Expr) -> Expr:
     coef = Fraction(1)
     bases: dict = {}
     order: list = []
-    ones = False
     for f in flat:
         if type(f) is Const:
             coef *= f.value
@@ -897,7 +912,6 @@ def mul(*factors: Expr) -> Expr:
         if type(f) is Zero:
             return zero_like(shape)
         if type(f) is Ones:
-            ones = True
             continue
         if type(f) is Power and type(f.args[1]) is Const:
             base, k = f.args[0], f.args[1].value
@@ -918,7 +932,8 @@ def mul(*factors: Expr) -> Expr:
         out.append(base if k == 1 else power(base, Const(k)))
     scalars = sorted((f for f in out if f.is_scalar), key=_factor_order)
     arrays = sorted((f for f in out if not f.is_scalar), key=_factor_order)
-    if ones and not arrays and not is_scalar_shape(shape):
+    if not arrays and not is_scalar_shape(shape):
+        # array factors that cancelled (s * s**-1) still leave an array: the scalars broadcast
         arrays = [Ones(shape)]
     parts = ([Const(coef)] if coef != 1 else []) + scalars + arrays
     if not parts:
@@ -970,6 +985,9 @@ def matmul(*factors: Expr) -> Expr:
         if reduced and _cancels(reduced[-1], f):
             reduced.pop()
             continue
+        if reduced and type(f) is Ones and type(reduced[-1]) is Ones and f.shape[0] in _UNIT:
+            reduced[-1] = Ones((reduced[-1].shape[0], f.shape[1]))  # 1 1ᵀ of ones is ones
+            continue
         if reduced and type(f) is Solve and reduced[-1] == f.args[0]:
             reduced.pop()
             f = f.args[1]
@@ -981,6 +999,9 @@ def matmul(*factors: Expr) -> Expr:
     else:
         core = MatMul(*reduced)
     return mul(*scalars, core) if scalars else core
+
+
+_UNIT = (None, Dim((), 1))
 
 
 def _cancels(a: Expr, b: Expr) -> bool:
@@ -1137,6 +1158,21 @@ def diag(a: Expr) -> Expr:
     return Diag(a)
 
 
+def tril(a: Expr) -> Expr:
+    """The lower triangle; idempotent, and the identity on lower-triangular or diagonal
+    symbols, zeros and identities."""
+    t = type(a)
+    if t is Tril or t in (Zero, Identity) or t is Diagm:
+        return a
+    if t is Symbol and a.structure & {"lower", "diagonal"}:
+        return a
+    if t is Add:
+        return add(*(tril(x) for x in a.args))
+    if t is Mul and a.scalar_factors and len(a.array_factors) == 1:
+        return mul(*a.scalar_factors, tril(a.array_factors[0]))
+    return Tril(a)
+
+
 def diagm(x: Expr) -> Expr:
     if type(x) is Zero:
         return Zero((x.shape[0], x.shape[0]))
@@ -1284,6 +1320,8 @@ def rebuild_smart(x: Expr, ch: list[Expr]) -> Expr:
         return diag(ch[0])
     if t is Diagm:
         return diagm(ch[0])
+    if t is Tril:
+        return tril(ch[0])
     if t is Kron:
         return kron(ch[0], ch[1])
     if t is Solve:
@@ -1337,4 +1375,12 @@ def expanded_size(e: Expr, limit: int) -> int:
 from .complex_nodes import COMPLEX_NODE_CLASSES, Abs, Conj, Imag, ImagUnit, Real  # noqa: E402, F401
 from .matrix_functions import NODES as _MATRIX_NODES  # noqa: E402
 
-NODE_CLASSES = NODE_CLASSES + _MATRIX_NODES + COMPLEX_NODE_CLASSES
+NODE_CLASSES = NODE_CLASSES + _MATRIX_NODES
+
+# reductions over an axis, row-wise softmax and maximum/minimum live in their own module; they
+# are built from the constructors above, so they are imported last
+from .expr_axis import AXIS_NODES, AxisReduce, AxisSoftmax, Extremum, TieWeights  # noqa: E402, F401
+
+NODE_CLASSES = NODE_CLASSES + AXIS_NODES
+
+NODE_CLASSES = NODE_CLASSES + COMPLEX_NODE_CLASSES

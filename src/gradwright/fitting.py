@@ -25,6 +25,10 @@ def _prod(values) -> int:
 
 def _kind(sym: E.Symbol) -> str:
     words = sym.structure
+    if "complex" in words:
+        # real parts then imaginary parts, column-major: the gradient G = ∂f/∂Re + i ∂f/∂Im
+        # packs to the real gradient over those entries (docs/complex.md)
+        return "complex"
     if not E.is_matrix_shape(sym.shape):
         return "full"
     if "orthogonal" in words:
@@ -67,6 +71,8 @@ class Layout:
             if info.role == "constant"
         }
         self.bound: dict = {}  # dim name -> size, from pack() calls and constants seen
+
+    def _refuse_orthogonal(self) -> None:
         for v, kind in self.kinds.items():
             if kind == "orthogonal":
                 raise NotSupportedError(
@@ -109,6 +115,7 @@ class Layout:
 
     def shapes(self, length: int | None = None) -> dict:
         """variable -> concrete NumPy shape; one unknown dim is solved from `length`."""
+        self._refuse_orthogonal()
         shapes = self._resolve({})
         if shapes is None:
             unknown = sorted(
@@ -149,6 +156,8 @@ class Layout:
             return shape[0] * (shape[0] + 1) // 2
         if kind == "diagonal":
             return shape[0]
+        if kind == "complex":
+            return 2 * _prod(shape)
         return _prod(shape)
 
     def slices(self, shapes: dict | None = None) -> dict:
@@ -162,15 +171,26 @@ class Layout:
         return out
 
     def describe(self, shapes: dict | None = None) -> str:
-        shapes = shapes or self.shapes()
+        """The layout in words: each variable's shape, place and order in the packed vector."""
+        what_of = {
+            "full": "column-major",
+            "lower": "lower triangle, column by column",
+            "symmetric": "lower triangle, column by column",
+            "diagonal": "diagonal",
+            "orthogonal": "not packable",
+            "complex": "column-major real parts, then imaginary parts",
+        }
+        if shapes is None:
+            try:
+                shapes = self.shapes()
+            except FormulaError:  # sizes not known yet: the order without the offsets
+                return "; ".join(
+                    f"{v} ({', '.join(map(str, self.symbolic[v]))}) ({what_of[self.kinds[v]]})"
+                    for v in self.variables
+                )
         parts = []
         for v, sl in self.slices(shapes).items():
-            what = {
-                "full": "column-major",
-                "lower": "lower triangle, column by column",
-                "symmetric": "lower triangle, column by column",
-                "diagonal": "diagonal",
-            }[self.kinds[v]]
+            what = what_of[self.kinds[v]]
             parts.append(f"{v} {shapes[v]} -> [{sl.start}:{sl.stop}] ({what})")
         return "; ".join(parts)
 
@@ -182,6 +202,9 @@ class Layout:
             return value[_lower_index(value.shape[0])]
         if kind == "diagonal":
             return np.diagonal(value).copy()
+        if kind == "complex":
+            flat = np.ravel(value, order="F")
+            return np.concatenate([np.real(flat), np.imag(flat)])
         return np.ravel(value, order="F")
 
     def _from_free(self, var: str, piece: np.ndarray, shape: tuple):
@@ -196,13 +219,18 @@ class Layout:
             if kind == "symmetric":
                 out[cols, rows] = piece
             return out
+        if kind == "complex":
+            half = piece.size // 2
+            piece = piece[:half] + 1j * piece[half:]
         out = piece.reshape(shape, order="F")
         return out[()] if out.ndim == 0 else out
 
     def _cotangent_to_free(self, var: str, g) -> np.ndarray:
         """The adjoint of `_from_free`: a gradient shaped like the variable -> free entries."""
-        g = np.asarray(g, dtype=float)
         kind = self.kinds[var]
+        if kind == "complex":
+            return self._to_free(var, np.asarray(g, dtype=complex))
+        g = np.asarray(g, dtype=float)
         if kind == "symmetric":
             full = g + g.T
             full[np.diag_indices(g.shape[0])] /= 2
@@ -211,6 +239,7 @@ class Layout:
 
     def pack(self, *values, **arrays) -> np.ndarray:
         """`pack(W=W0, b=b0)` (or positionally in wrt order) -> the packed 1-D float vector."""
+        self._refuse_orthogonal()
         if values and arrays:
             raise TypeError("pass the variables either by name or in order, not both")
         if values:
@@ -231,7 +260,7 @@ class Layout:
             )
         parts = []
         for v in self.variables:
-            value = np.asarray(arrays[v], dtype=float)
+            value = np.asarray(arrays[v], dtype=complex if self.kinds[v] == "complex" else float)
             if value.ndim != len(self.symbolic[v]):
                 raise ValueError(
                     f"{v} has {value.ndim} axes; the block declares shape {self.symbolic[v]}"

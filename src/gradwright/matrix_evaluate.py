@@ -53,6 +53,25 @@ def _eigvalsh_vjp(self, e):
     return u @ np.diag(self.ev(e.args[1])[:, 0]) @ u.T
 
 
+def _eigvalsh_vjp_jvp(self, e):
+    # from dU = U (Ω ∘ (Uᵀ dS U)), Ωᵢⱼ = 1/(λⱼ - λᵢ) (Magnus 1985), written out term by term
+    w, u = np.linalg.eigh(self.ev(e.args[0]))
+    g = self.ev(e.args[1])[:, 0]
+    c = u.T @ _sym(self.ev(e.args[2])) @ u
+    n = w.shape[0]
+    omega = np.zeros((n, n))
+    for i in range(n):
+        for j in range(n):
+            if i != j and w[j] != w[i]:
+                omega[i, j] = 1.0 / (w[j] - w[i])
+    du = u @ (omega * c)
+    return du @ np.diag(g) @ u.T + u @ np.diag(g) @ du.T
+
+
+def _tril_half(self, e):
+    return _phi(self.ev(e.args[0]))
+
+
 def _cholesky(self, e):
     return np.linalg.cholesky(self.ev(e.args[0]))
 
@@ -80,6 +99,19 @@ def _spectral_frechet(self, e):
 
 def _expm_frechet(self, e):
     return _frechet("expm", self.ev(e.args[0]), self.ev(e.args[1]))
+
+
+def _logm_frechet(self, e):
+    """∫₀¹ (t(A - I) + I)⁻¹ E (t(A - I) + I)⁻¹ dt (Higham 2008, eq. (11.10), from memory),
+    by 40-point Gauss–Legendre quadrature."""
+    a, d = self.ev(e.args[0]), self.ev(e.args[1])
+    nodes, weights = np.polynomial.legendre.leggauss(40)
+    eye = np.eye(a.shape[0])
+    out = np.zeros_like(a, dtype=float)
+    for t, w in zip(0.5 * (nodes + 1), 0.5 * weights):
+        r = np.linalg.inv(t * (a - eye) + eye)
+        out = out + w * (r @ d @ r)
+    return out
 
 
 def _kron_solve(op: np.ndarray, q: np.ndarray) -> np.ndarray:
@@ -110,12 +142,15 @@ for _cls, _fn in {
     M.Eigvalsh: _eigvalsh,
     M.EigvalshJvp: _eigvalsh_jvp,
     M.EigvalshVjp: _eigvalsh_vjp,
+    M.EigvalshVjpJvp: _eigvalsh_vjp_jvp,
+    M.TrilHalf: _tril_half,
     M.Cholesky: _cholesky,
     M.CholeskyJvp: _cholesky_jvp,
     M.CholeskyVjp: _cholesky_vjp,
     M.MatrixFunction: _matrix_function_node,
     M.SpectralFrechet: _spectral_frechet,
     M.ExpmFrechet: _expm_frechet,
+    M.LogmFrechet: _logm_frechet,
     M.SolveSylvester: _solve_sylvester,
     M.SolveContinuousLyapunov: _solve_continuous_lyapunov,
     M.SolveDiscreteLyapunov: _solve_discrete_lyapunov,

@@ -7,7 +7,19 @@ and the linear maps their differentials are built from (each linear in its last 
 from __future__ import annotations
 
 from .errors import ShapeError
-from .expr import Expr, _need_square, describe, is_spd, is_symmetric
+from .expr import (
+    Expr,
+    Identity,
+    _need_square,
+    add,
+    describe,
+    inverse,
+    is_spd,
+    is_symmetric,
+    kron,
+    sub,
+    transpose,
+)
 
 #: the matrix functions of the language, by their SciPy names
 MATRIX_FUNCTIONS = ("expm", "logm", "sqrtm")
@@ -97,6 +109,34 @@ class CholeskyVjp(Expr):
         return True
 
 
+class TrilHalf(Expr):
+    """Φ(X): the strict lower triangle of X plus half its diagonal (Murray 2016); linear."""
+
+    __slots__ = ()
+
+    def _infer_shape(self):
+        _need_square(self.args[0], "tril_half")
+        return self.args[0].shape
+
+
+class EigvalshVjpJvp(Expr):
+    """The derivative of U Diag(g) Uᵀ along E for fixed g: U (g^[1] ∘ (Uᵀ E U)) Uᵀ with
+    g^[1]ᵢⱼ = (gᵢ - gⱼ)/(λᵢ - λⱼ) (0 where i = j); args (S, g, E), linear in E."""
+
+    __slots__ = ()
+
+    def _infer_shape(self):
+        s, g, e = self.args
+        _need_square(s, "eigvalsh")
+        if g.shape != (s.shape[0], None):
+            raise ShapeError(f"the eigenvalue adjoint needs a ({s.shape[0]},) vector")
+        _same_square(s, e, "the eigenvalue second derivative")
+        return s.shape
+
+    def known_symmetric(self) -> bool:
+        return True
+
+
 # --- matrix functions ---------------------------------------------------------------------------
 
 
@@ -158,6 +198,18 @@ class ExpmFrechet(Expr):
         return a.shape
 
 
+class LogmFrechet(Expr):
+    """The Fréchet derivative of the principal logm at a square A along E; args (A, E)."""
+
+    __slots__ = ()
+
+    def _infer_shape(self):
+        a, e = self.args
+        _need_square(a, "logm")
+        _same_square(a, e, "the derivative of logm")
+        return a.shape
+
+
 # --- matrix equations ---------------------------------------------------------------------------
 
 
@@ -183,6 +235,11 @@ class SolveSylvester(Expr):
             )
         return q.shape
 
+    def kronecker_operator(self) -> Expr:
+        """vec X = (I ⊗ A + Bᵀ ⊗ I)⁻¹ vec Q (Henderson and Searle, 1981)."""
+        a, b, _q = self.args
+        return inverse(add(kron(Identity(b.shape[0]), a), kron(transpose(b), Identity(a.shape[0]))))
+
 
 class SolveContinuousLyapunov(Expr):
     """X with A X + X Aᵀ = Q (scipy.linalg.solve_continuous_lyapunov); linear in Q."""
@@ -202,6 +259,12 @@ class SolveContinuousLyapunov(Expr):
 
     def known_symmetric(self) -> bool:
         return is_symmetric(self.args[1])
+
+    def kronecker_operator(self) -> Expr:
+        """vec X = (I ⊗ A + A ⊗ I)⁻¹ vec Q."""
+        a = self.args[0]
+        eye = Identity(a.shape[0])
+        return inverse(add(kron(eye, a), kron(a, eye)))
 
 
 class SolveDiscreteLyapunov(Expr):
@@ -223,10 +286,17 @@ class SolveDiscreteLyapunov(Expr):
     def known_symmetric(self) -> bool:
         return is_symmetric(self.args[1])
 
+    def kronecker_operator(self) -> Expr:
+        """vec X = (I - A ⊗ A)⁻¹ vec Q."""
+        a = self.args[0]
+        return inverse(sub(Identity(a.shape[0] * a.shape[0]), kron(a, a)))
+
 
 NODES = (
-    Eigvalsh, EigvalshJvp, EigvalshVjp, Cholesky, CholeskyJvp, CholeskyVjp, MatrixFunction,
-    SpectralFrechet, ExpmFrechet, SolveSylvester, SolveContinuousLyapunov, SolveDiscreteLyapunov,
+    Eigvalsh, EigvalshJvp, EigvalshVjp, EigvalshVjpJvp, Cholesky, CholeskyJvp, CholeskyVjp,
+    TrilHalf, MatrixFunction,
+    SpectralFrechet, ExpmFrechet, LogmFrechet, SolveSylvester, SolveContinuousLyapunov,
+    SolveDiscreteLyapunov,
 )  # fmt: skip
 
 __all__ = [c.__name__ for c in NODES] + ["MATRIX_FUNCTIONS", "NODES"]

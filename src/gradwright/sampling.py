@@ -42,6 +42,9 @@ def sample_symbol(sym: E.Symbol, sizes: dict, rng: np.random.Generator, positive
             else rng.uniform(0.5, 2.0, n) * rng.choice([-1.0, 1.0], n)
         )
         out = np.diag(v)
+    elif "lower" in words:
+        # a Cholesky-like factor: a positive diagonal keeps L Lᵀ positive definite
+        out = np.tril(rng.standard_normal((n, n)), -1) + np.diag(rng.uniform(0.5, 2.0, n))
     elif "symmetric" in words:
         a = rng.standard_normal((n, n))
         out = (a + a.T) / 2

@@ -76,4 +76,25 @@ ARRAY_TARGETS = [
     _c("map-dim-scale", "X: (n, k)\nF = X / n + pi", "X"),
 ]  # fmt: skip
 
-NUMPY_CASES = BROADCAST + INDEXING + NUMBERS + ARRAY_TARGETS
+# reductions over an axis, softmax over an axis, maximum/minimum, the NumPy entrywise functions
+REDUCTIONS = [
+    _c("ferry-logit", LAYER + "Z = X @ W + b\nf = sum(logsumexp(Z, axis=1)) - sum(Y * Z)", "W b"),
+    _c("log-softmax-by-hand", "Z: (n, k)\nY: (n, k)\nf = -sum(Y * (Z - logsumexp(Z, axis=1, keepdims=True)))", "Z"),
+    _c("log-softmax-rows", "Z: (n, k)\nY: (n, k)\nf = -sum(Y * log_softmax(Z, axis=-1))", "Z"),
+    _c("relu-layer", LAYER + "H = maximum(X @ W + b, 0)\nf = sum((H - Y) ** 2)", "W b"),
+    _c("axis-sums", "R: (n, k)\nf = sum(sum(R ** 2, axis=0) ** 2) + mean(R, axis=-1) @ mean(R, axis=1)", "R"),
+    _c("max-min-axis", "X: (n, k)\nf = sum(max(X, axis=1) ** 2) - sum(min(X, axis=0, keepdims=True))", "X"),
+    _c("max-centred", "Z: (n, k)\nf = sum(exp(Z - max(Z, axis=1, keepdims=True)))", "Z"),
+    _c("norm-rows", "X: (n, k)\nf = sum(norm(X, axis=1)) + norm(X, axis=0) @ norm(X, axis=0)", "X"),
+    _c("softmax-columns", "Z: (n, k)\nY: (n, k)\nf = sum(Y * softmax(Z, axis=0)) + sum(softmax(Z, axis=1)[0] ** 2)", "Z"),
+    _c("entrywise-zoo", "x: (n,)\nf = sum(abs(x) + cosh(x) + sinh(x) ** 2 + arctan(x) + expm1(x) + square(x) + erf(x))", "x"),
+    _c("positive-zoo", "x: (n,) positive\nnu: () positive\nf = sum(log1p(x) + reciprocal(x) + gammaln(nu * x)) + digamma(nu)", "x nu"),
+    _c("stable-forms", "Z: (n, k)\nx: (n,)\nf = sum(log(exp(Z) @ ones(k))) + log(sum(exp(x))) + sum(log(1 + exp(x)))", "Z x"),
+    _c("minimum-scalar", "x: (n,)\nc: ()\nf = sum(minimum(x, c) ** 2 + maximum(c, x))", "x c"),
+    _c("map-row-logsumexp", "Z: (n, k)\nF = logsumexp(Z, axis=1, keepdims=True)", "Z"),
+    _c("map-softmax-rows", "Z: (n, k)\nF = softmax(Z, axis=1)", "Z"),
+    _c("map-relu-bias", LAYER + "F = maximum(X @ W + b, 0)", "W b"),
+    _c("map-column-max", "Z: (n, k)\nF = max(Z, axis=0)", "Z"),
+]  # fmt: skip
+
+NUMPY_CASES = BROADCAST + INDEXING + NUMBERS + ARRAY_TARGETS + REDUCTIONS

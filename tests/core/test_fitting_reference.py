@@ -5,6 +5,8 @@
   (statsmodels.datasets.anes96): estimates and standard errors against statsmodels `Logit` /
   `MNLogit` fitted by Newton's method, and the number of Newton iterations under statsmodels'
   own stopping rule (reference library: statsmodels).
+- Gaussian-process log marginal likelihood, gradient and block Hessian, and factor analysis,
+  against scikit-learn (reference library: scikit-learn).
 """
 
 from __future__ import annotations
@@ -30,7 +32,7 @@ MNLOGIT = """X: (n, p)
 Y: (n, k)
 W: (p, k)
 b: (k,)
-Z = X @ W + outer(ones(n), b)
+Z = X @ W + b
 nll = sum(log(1 + exp(Z) @ ones(k))) - sum(Y * Z)"""
 
 
@@ -90,3 +92,81 @@ def test_multinomial_logit_matches_statsmodels_on_anes96():
     assert np.max(np.abs(se["W"] / bse[1:] - 1)) < RTOL
     assert np.max(np.abs(se["b"] / bse[0] - 1)) < RTOL
     assert iterations == ref.mle_retvals["iterations"]
+
+
+# --- Gaussian-process hyperparameters and factor analysis against scikit-learn -----------------
+
+# the sap-flow style GP: signal variance, length-scale and noise, each fitted through its log
+GP = """D: (n, n)
+y: (n,)
+s2: () positive
+ell: () positive
+noise: () positive
+K = s2 * exp(-D / (2 * ell**2)) + noise * eye(n)
+nll = (y @ solve(K, y) + logdet(K)) / 2"""
+
+FA = """S: (p, p) symmetric
+N: ()
+L: (p, k)
+psi: (p,) positive
+C = L @ L.T + diagm(psi)
+nll = (N * logdet(C) + trace(solve(C, S))) / 2"""
+
+
+def test_gp_log_marginal_likelihood_and_block_hessian_match_scikit_learn():
+    skl = pytest.importorskip("sklearn.gaussian_process")
+    kernels = pytest.importorskip("sklearn.gaussian_process.kernels")
+    rng = np.random.default_rng(3)
+    x = np.sort(rng.uniform(0, 10, 25))
+    y = np.sin(x) + 0.1 * rng.standard_normal(25)
+    kernel = kernels.ConstantKernel(1.0) * kernels.RBF(1.0) + kernels.WhiteKernel(0.1)
+    # alpha=0: no jitter added to the diagonal, so both compute the same K
+    gp = skl.GaussianProcessRegressor(kernel, optimizer=None, alpha=0.0).fit(x[:, None], y)
+    d = derive(
+        GP, wrt=["s2", "ell", "noise"], parameterize={"s2": "log", "ell": "log", "noise": "log"}
+    )
+    assert d.variables == ("log_s2", "log_ell", "log_noise")  # the order of sklearn's theta
+    obj = d.objective(D=(x[:, None] - x[None, :]) ** 2, y=y)
+    n = len(y)
+    for theta in (np.log([1.7, 0.8, 0.05]), np.log([0.4, 2.5, 0.3])):
+        # reference library: scikit-learn, log_marginal_likelihood(theta, eval_gradient=True)
+        lml, grad = gp.log_marginal_likelihood(theta, eval_gradient=True)
+        value, g = obj(theta)
+        assert abs(-value - n / 2 * np.log(2 * np.pi) - lml) <= 1e-10 * abs(lml)
+        assert np.max(np.abs(-g - grad)) <= 1e-10 * max(1.0, np.max(np.abs(grad)))
+        # the block Hessian against central differences of scikit-learn's gradient
+        h = 1e-5  # about eps**(1/3) (Nocedal and Wright, 2nd ed., section 8.1)
+        fd = np.array(
+            [
+                (
+                    gp.log_marginal_likelihood(theta + h * e, eval_gradient=True)[1]
+                    - gp.log_marginal_likelihood(theta - h * e, eval_gradient=True)[1]
+                )
+                / (2 * h)
+                for e in np.eye(3)
+            ]
+        )
+        hess = obj.hess(theta)
+        assert np.max(np.abs(-hess - fd)) <= 1e-6 * max(1.0, np.max(np.abs(hess)))
+
+
+def test_factor_analysis_fit_reaches_scikit_learns_likelihood():
+    decomposition = pytest.importorskip("sklearn.decomposition")
+    from scipy.optimize import minimize
+
+    rng = np.random.default_rng(11)
+    X = rng.standard_normal((200, 3)) @ rng.standard_normal((3, 6))
+    X += rng.standard_normal((200, 6)) * rng.uniform(0.3, 1.0, 6)
+    fa = decomposition.FactorAnalysis(n_components=2, random_state=0).fit(X)
+    ll_reference = fa.score(X) * len(X)  # reference library: scikit-learn, mean log-likelihood
+    d = derive(FA, wrt=["L", "psi"], parameterize={"psi": "log"})
+    Xc = X - X.mean(axis=0)
+    obj = d.objective(S=Xc.T @ Xc, N=float(len(X)))
+    x0 = obj.pack(L=0.5 * rng.standard_normal((6, 2)), log_psi=np.zeros(6))
+    fit = minimize(obj, x0, jac=True, method="L-BFGS-B", options={"maxiter": 5000, "gtol": 1e-9})
+    ll = -fit.fun - len(X) * 6 / 2 * np.log(2 * np.pi)
+    assert ll >= ll_reference - 1e-9 * abs(ll_reference)
+    # the fitted psi is positive by construction; the values of the definitions read it off
+    vals = d.values(S=Xc.T @ Xc, N=float(len(X)), **obj.unpack(fit.x))
+    assert np.all(vals["psi"] > 0)
+    assert vals["nll"] == pytest.approx(fit.fun, rel=1e-12)

@@ -78,7 +78,7 @@ def test_constants_keep_their_digits():
     assert "2.756815599614018" in d.latex() and "27568155996140181" not in d.latex()
     assert "27568155996140181" not in d.text_steps()
     half = parse_block("N: ()\nx: (n,)\nf = N/2 * sum(x)").expr
-    assert latex(half) == r"\frac{N\,\operatorname{sum}(x)}{2}"
+    assert latex(half) == r"\frac{N}{2}\,\operatorname{sum}(x)"
     assert "0.5" not in latex(half)
 
 
@@ -141,15 +141,18 @@ def test_expressions_print_as_formulas():
 _LITERALS = st.sampled_from(["0.9189385332046727", "1.5e-7", "0.1", "3", "2.5", "0.333"])
 
 
+_FUZZ_SEEN: list = []  # (derived?) per example, so that the test cannot pass by refusing all
+
+
 @settings(
-    max_examples=40,
+    max_examples=60,
     deadline=None,
     derandomize=True,
     database=None,
     suppress_health_check=[HealthCheck.too_slow, HealthCheck.data_too_large],
 )
-@given(blocks(array_targets=False), _LITERALS, st.sampled_from(["*", "/"]))
-def test_fuzzed_block_notation(drawn, literal, op):
+@given(blocks(), _LITERALS, st.sampled_from(["*", "/"]))
+def _fuzzed_block_notation(drawn, literal, op):
     lines = drawn.text.splitlines()
     target = lines[-1].split("=")[0].strip()
     block = "\n".join(lines + [f"scaled = {literal} {op} 7 * {target}"])
@@ -157,8 +160,16 @@ def test_fuzzed_block_notation(drawn, literal, op):
         d = derive(block, wrt=list(drawn.wrt))
         assert d.steps
     except FormulaError:
+        _FUZZ_SEEN.append(False)
         return
     _check_derivation(d, block)
+    _FUZZ_SEEN.append(True)
+
+
+def test_fuzzed_block_notation():
+    _FUZZ_SEEN.clear()
+    _fuzzed_block_notation()
+    assert sum(_FUZZ_SEEN) >= 0.7 * len(_FUZZ_SEEN), (sum(_FUZZ_SEEN), len(_FUZZ_SEEN))
 
 
 def test_reading_accepts_vectors_and_their_transposes():

@@ -25,6 +25,9 @@ ALLOWED_EXEC = {
     ("calculus/stationary.py", "compile"),
     ("notebook/export.py", "exec"),
     ("notebook/export.py", "compile"),
+    # the array-API module: the NumPy module's tree rewritten by printing/array_api_code.py
+    ("backends.py", "exec"),
+    ("backends.py", "compile"),
     # the function families: module names from the package's own directory, never user text
     ("language/parser.py", "import_module"),
     # the packed block Hessian and the values of definitions: generated modules too
@@ -103,14 +106,7 @@ MODULE_NAMES = {"np", "warnings", "cmath"}
 GENERATOR_LOCALS = {"_dims", "_direction", "_cotangent"}
 # the parser refuses user names starting with '_', so every such name is the generator's own
 GENERATOR_LOCAL_RE = re.compile(r"^(_[A-Za-z]\w*|grad_\w+)$")
-ALLOWED_BUILTINS = {
-    "range",
-    "float",
-    "type",
-    "AttributeError",
-    "LookupError",
-    "min",
-}  # min: call-time chain order
+ALLOWED_BUILTINS = {"range", "float", "type", "min", "AttributeError", "LookupError"}
 ARRAY_ATTRIBUTES = {"T", "reshape", "shape", "dtype"}  # shape and dtype: the fast check
 IMPORTS = {
     "import cmath",

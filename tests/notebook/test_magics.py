@@ -154,7 +154,7 @@ def test_formula_error_is_one_usage_error_with_caret(shell):
     with pytest.raises(UsageError) as err:
         shell.run_cell_magic("derive", "U", bad)
     text = str(err.value)
-    assert text.startswith("line 3:") and "^" in text
+    assert text.startswith("line 4:") and "^" in text  # the cell's line 4: %%derive is line 1
     assert "Traceback" not in text
     # Through the cell path a user sees the one message, no traceback.
     with capture_output() as cap:

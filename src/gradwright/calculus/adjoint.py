@@ -100,6 +100,12 @@ def _diagm(node, g):
     return [(node.args[0], E.diag(g))]
 
 
+@adjoint_rule(E.Tril)
+def _tril(node, g):
+    # <tril(A), G> = <A, tril(G)>: the projection onto lower triangles is self-adjoint
+    return [(node.args[0], E.tril(g))]
+
+
 @adjoint_rule(E.Kron)
 def _kron(node, g):
     a, b = node.args

@@ -42,9 +42,17 @@ def block_hvp_expressions(derivation) -> dict:
         )
         for v in derivation.variables
     }
+    from ..derivation import MAX_HESSIAN_GRADIENT
+
     out = {}
     for v in derivation.variables:
-        dg = simplify(differential(derivation._gradient(v), wrt))
+        g = derivation._gradient(v)
+        if E.expanded_size(g, MAX_HESSIAN_GRADIENT) > MAX_HESSIAN_GRADIENT:
+            raise NotSupportedError(
+                f"not supported yet: second derivatives of so large a gradient (of {v}; more "
+                f"than {MAX_HESSIAN_GRADIENT:,} parts written out)"
+            )
+        dg = simplify(differential(g, wrt))
         out[v] = simplify(E.substitute(dg, mapping))
     return out
 

@@ -46,9 +46,31 @@ def _eigvalsh_jvp(x, d):
     return _linear_in_last(x, d, "eigvalsh (eigenvector derivatives)", M.EigvalshJvp)
 
 
-@rule(M.EigvalshVjp, "the eigenvalue adjoint is linear")
+@rule(M.EigvalshVjp, "eigenvector rule dU = U (Ω ∘ (Uᵀ dS U)) (Magnus 1985)")
 def _eigvalsh_vjp(x, d):
-    return _linear_in_last(x, d, "eigvalsh (eigenvector derivatives)", M.EigvalshVjp)
+    s, g = x.args
+    out = []
+    dg = d(g)
+    if not E.is_zero(dg):
+        out.append(M.EigvalshVjp(s, dg))
+    ds = d(s)
+    if not E.is_zero(ds):
+        out.append(M.EigvalshVjpJvp(s, g, ds))
+    return E.add(*out) if out else E.zero_like(x.shape)
+
+
+@rule(M.EigvalshVjpJvp, "the eigenvector derivative is linear in dS")
+def _eigvalsh_vjp_jvp(x, d):
+    return _linear_in_last(x, d, "eigvalsh (third derivatives)", M.EigvalshVjpJvp)
+
+
+@adjoint_rule(M.EigvalshVjpJvp)
+def _adj_eigvalsh_vjp_jvp(node, g):
+    # g^[1] is symmetric and U orthogonal: self-adjoint in E
+    s, w, e = node.args
+    if s.has_differential or w.has_differential:
+        _nonlinear(node)
+    return [(e, M.EigvalshVjpJvp(s, w, g))]
 
 
 @adjoint_rule(M.EigvalshJvp)
@@ -83,9 +105,37 @@ def _cholesky_jvp(x, d):
     return _linear_in_last(x, d, "cholesky", M.CholeskyJvp)
 
 
-@rule(M.CholeskyVjp, "the Cholesky adjoint is linear")
+@rule(M.CholeskyVjp, "product rule for sym(L⁻ᵀ Φ(Lᵀ G) L⁻¹)")
 def _cholesky_vjp(x, d):
-    return _linear_in_last(x, d, "cholesky", M.CholeskyVjp)
+    chol, g = x.args
+    out = []
+    dg = d(g)
+    if not E.is_zero(dg):
+        out.append(M.CholeskyVjp(chol, dg))
+    dl = d(chol)
+    if not E.is_zero(dl):
+        # W = L⁻ᵀ Φ(Lᵀ G) L⁻¹: dW = -L⁻ᵀ dLᵀ W - W dL L⁻¹ + L⁻ᵀ Φ(dLᵀ G) L⁻¹, and d sym(W) = sym(dW)
+        inv = E.inverse(chol)
+        inv_t = E.transpose(inv)
+        w = E.matmul(inv_t, M.TrilHalf(E.matmul(E.transpose(chol), g)), inv)
+        dw = E.add(
+            E.neg(E.matmul(inv_t, E.transpose(dl), w)),
+            E.neg(E.matmul(w, dl, inv)),
+            E.matmul(inv_t, M.TrilHalf(E.matmul(E.transpose(dl), g)), inv),
+        )
+        out.append(E.sym_part(dw))
+    return E.add(*out) if out else E.zero_like(x.shape)
+
+
+@rule(M.TrilHalf, "Φ is linear")
+def _tril_half(x, d):
+    da = d(x.args[0])
+    return E.zero_like(x.shape) if E.is_zero(da) else M.TrilHalf(da)
+
+
+@adjoint_rule(M.TrilHalf)
+def _adj_tril_half(node, g):
+    return [(node.args[0], M.TrilHalf(g))]  # ⟨G, Φ(X)⟩ = ⟨Φ(G), X⟩
 
 
 @adjoint_rule(M.CholeskyJvp)
@@ -110,6 +160,7 @@ _RULE_NAMES = {
     "symmetric": "Daleckii–Krein rule U (f^[1](λ) ∘ (Uᵀ dS U)) Uᵀ (Bhatia 1997, ch. V)",
     "expm": "Fréchet derivative of expm (Al-Mohy and Higham 2009)",
     "sqrtm": "square-root rule X dX + dX X = dA (Higham 2008)",
+    "logm": "Fréchet derivative of logm (Higham 2008, ch. 11)",
 }
 
 
@@ -131,9 +182,7 @@ def _matrix_function(x, d):
     if name == "sqrtm":
         # X X = A, so X dX + dX X = dA: a Sylvester equation with both coefficients X
         return M.SolveSylvester(x, x, da)
-    raise NotSupportedError(  # the reader refuses logm of a non-symmetric argument already
-        f"not supported yet: the derivative of {name} of a matrix not known to be symmetric"
-    )
+    return M.LogmFrechet(a, da)
 
 
 @rule(M.SpectralFrechet, "the Daleckii–Krein form is linear in dS")
@@ -194,6 +243,23 @@ def _adj_expm_frechet(node, g):
     if c is not None:
         return [(e, E.mul(c, M.MatrixFunction("expm", E.transpose(a))))]
     return [(e, M.ExpmFrechet(E.transpose(a), g))]
+
+
+@rule(M.LogmFrechet, "the Fréchet derivative is linear in dA")
+def _logm_frechet(x, d):
+    return _linear_in_last(x, d, "logm", M.LogmFrechet)
+
+
+@adjoint_rule(M.LogmFrechet)
+def _adj_logm_frechet(node, g):
+    # the integral form ∫ (t(A - I) + I)⁻¹ E (t(A - I) + I)⁻¹ dt gives L(A, ·)* = L(Aᵀ, ·)
+    a, e = node.args
+    if a.has_differential:
+        _nonlinear(node)
+    c = _identity_multiple(g)
+    if c is not None:
+        return [(e, E.mul(c, E.inverse(E.transpose(a))))]
+    return [(e, M.LogmFrechet(E.transpose(a), g))]
 
 
 # --- matrix equations ---------------------------------------------------------------------------

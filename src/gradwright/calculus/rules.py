@@ -11,6 +11,7 @@ from typing import NamedTuple
 
 from .. import expr as E
 from ..errors import NotSupportedError
+from .rules_entrywise import EXTRA_DERIVATIVES, RULE_NOTES
 
 DiffFn = Callable[[E.Expr], E.Expr]
 
@@ -22,6 +23,8 @@ class Rule(NamedTuple):
 
 
 RULES: dict[type, Rule] = {}
+#: a node class whose rule's name depends on the node (max vs logsumexp): node -> name
+RULE_NAMERS: dict[type, Callable[[E.Expr], str]] = {}
 
 
 def rule(cls, name, structural=False):
@@ -93,6 +96,11 @@ def _diag(x, d):
 @rule(E.Diagm, "diagm is linear", structural=True)
 def _diagm(x, d):
     return E.diagm(d(x.args[0]))
+
+
+@rule(E.Tril, "tril is linear", structural=True)
+def _tril(x, d):
+    return E.tril(d(x.args[0]))
 
 
 # --- products ---------------------------------------------------------------------------------
@@ -178,6 +186,8 @@ def _func_derivative(name: str, a: E.Expr, fx: E.Expr) -> E.Expr:
         return E.mul(fx, E.sub(E.ONE, fx))
     if name == "softplus":
         return E.Func("sigmoid", a)
+    if name in EXTRA_DERIVATIVES:
+        return EXTRA_DERIVATIVES[name](a, fx)
     raise NotSupportedError(f"not supported yet: the derivative of {name}")  # pragma: no cover
 
 
@@ -314,7 +324,9 @@ def expand_once(e: E.Expr, wrt: frozenset) -> tuple[E.Expr, list[str], bool]:
             if type(inner) is E.Named:
                 name = f"definition of {inner.name}"
             if type(inner) is E.Func:
-                name = f"chain rule for {inner.name}"
+                name = f"chain rule for {inner.name}{RULE_NOTES.get(inner.name, '')}"
+            if type(inner) in RULE_NAMERS:
+                name = RULE_NAMERS[type(inner)](inner)
             if type(inner) is E.Mul and sum(1 for f in inner.args if f.symbols & wrt) == 1:
                 name = "constant multiple"
                 structural = True

@@ -13,6 +13,7 @@ from .. import matrix_functions as M
 from ..errors import NotSupportedError
 from ..printing import latex, symbol_latex, text
 from ..printing import numpy_code as C
+from ..printing.lstsq import least_squares_form
 from ..simplify import expand, simplify
 from .rules import differential
 
@@ -47,7 +48,7 @@ class StationaryPoint:
             [
                 C.Output(
                     "_point",
-                    C.lower(self.expression, cost),
+                    least_squares_form(C.lower(self.expression, cost)),
                     self.expression.shape,
                     "the stationary point",
                 )

@@ -47,10 +47,16 @@ def _imag(reader, node, args, keywords):
 
 @register("abs", 1, 1)
 def _abs(reader, node, args, keywords):
+    """The modulus of a complex argument (a node of its own, not holomorphic); for a real
+    argument the entrywise function abs of the real language."""
+    from . import stable_forms
+
     a = args[0]
     if type(a) is E.Const:
         return E.Const(abs(a.value))
-    return Abs(a)
+    if has_complex(a):
+        return Abs(a)
+    return stable_forms.entrywise("abs", a)
 
 
 @register("vdot", 2, 2)

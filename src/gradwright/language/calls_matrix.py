@@ -8,7 +8,6 @@ from __future__ import annotations
 
 from .. import expr as E
 from .. import matrix_functions as M
-from ..errors import NotSupportedError
 from .registry import register
 
 
@@ -58,13 +57,6 @@ def _sqrtm(reader, node, args, keywords):
 def _logm(reader, node, args, keywords):
     (a,) = args
     _square(reader, node, a, "logm")
-    if not E.is_symmetric(a):
-        reader.fail_node(
-            "not supported yet: logm of a matrix not known to be symmetric (its derivative is "
-            "implemented for symmetric positive definite arguments; declare it `spd`)",
-            node.args[0],
-            NotSupportedError,
-        )
     return M.MatrixFunction("logm", a)
 
 
@@ -81,3 +73,67 @@ def _solve_continuous_lyapunov(reader, node, args, keywords):
 @register("solve_discrete_lyapunov", 2, 2)
 def _solve_discrete_lyapunov(reader, node, args, keywords):
     return M.SolveDiscreteLyapunov(*args)
+
+
+# --- the linear maps gradients are written with, so that every printed gradient reads back -------
+
+
+@register("eigvalsh_jvp", 2, 2)
+def _eigvalsh_jvp(reader, node, args, keywords):
+    s, e = args
+    _symmetric(reader, node, s, "eigvalsh_jvp", "it uses the eigenvectors of a symmetric matrix")
+    return M.EigvalshJvp(s, e)
+
+
+@register("eigvalsh_vjp", 2, 2)
+def _eigvalsh_vjp(reader, node, args, keywords):
+    s, g = args
+    _symmetric(reader, node, s, "eigvalsh_vjp", "it uses the eigenvectors of a symmetric matrix")
+    return M.EigvalshVjp(s, g)
+
+
+@register("eigvalsh_vjp_jvp", 3, 3)
+def _eigvalsh_vjp_jvp(reader, node, args, keywords):
+    s = args[0]
+    _symmetric(
+        reader, node, s, "eigvalsh_vjp_jvp", "it uses the eigenvectors of a symmetric matrix"
+    )
+    return M.EigvalshVjpJvp(*args)
+
+
+@register("tril_half", 1, 1)
+def _tril_half(reader, node, args, keywords):
+    _square(reader, node, args[0], "tril_half")
+    return M.TrilHalf(args[0])
+
+
+@register("cholesky_jvp", 2, 2)
+def _cholesky_jvp(reader, node, args, keywords):
+    _square(reader, node, args[0], "cholesky_jvp")
+    return M.CholeskyJvp(*args)
+
+
+@register("cholesky_vjp", 2, 2)
+def _cholesky_vjp(reader, node, args, keywords):
+    _square(reader, node, args[0], "cholesky_vjp")
+    return M.CholeskyVjp(*args)
+
+
+def _frechet(name: str):
+    def build(reader, node, args, keywords):
+        a, e = args
+        _square(reader, node, a, f"{name}_frechet")
+        if E.is_symmetric(a):
+            return M.SpectralFrechet(name, a, e)
+        if name == "expm":
+            return M.ExpmFrechet(a, e)
+        if name == "logm":
+            return M.LogmFrechet(a, e)
+        x = M.MatrixFunction("sqrtm", a)
+        return M.SolveSylvester(x, x, e)  # X L + L X = E (Higham 2008, §6.1)
+
+    return build
+
+
+for _name in M.MATRIX_FUNCTIONS:
+    register(f"{_name}_frechet", 2, 2)(_frechet(_name))

@@ -18,21 +18,24 @@ from dataclasses import dataclass, field
 from fractions import Fraction
 
 from .. import expr as E
+from ..entrywise import SPELLED_APART
 from ..errors import FormulaError, NotSupportedError, ShapeError
+from . import stable_forms
 from .broadcast import broadcast_all, broadcast_shapes, clash_message, internal_shape, numpy_shape
 from .registry import CALLS
 from .subscripts import subscript
 
 STRUCTURE_WORDS = (
-    "symmetric", "spd", "diagonal", "positive", "orthogonal", "square", "invertible",
+    "symmetric", "spd", "diagonal", "positive", "orthogonal", "square", "invertible", "lower",
     "complex", "hermitian", "hpd",
 )  # fmt: skip
 _SQUARE_WORDS = {
-    "symmetric", "spd", "diagonal", "orthogonal", "square", "invertible", "hermitian", "hpd"
+    "symmetric", "spd", "diagonal", "orthogonal", "square", "invertible", "lower", "hermitian",
+    "hpd",
 }  # fmt: skip
 _COMPLEX_FUNCTIONS = ("conj", "real", "imag", "vdot")
 #: real structure that a complex symbol cannot have (yet)
-_REAL_ONLY_WORDS = ("symmetric", "spd", "diagonal", "positive", "orthogonal")
+_REAL_ONLY_WORDS = ("symmetric", "spd", "diagonal", "positive", "orthogonal", "lower")
 
 #: bounds on the work one block may ask for (documented in docs/limits.md)
 LIMITS = {
@@ -51,10 +54,12 @@ LIMITS = {
 FUNCTIONS = {
     # name: (min args, max args)
     "trace": (1, 1), "det": (1, 1), "logdet": (1, 1), "inv": (1, 1), "solve": (2, 2),
-    "kron": (2, 2), "vec": (1, 1), "diag": (1, 1), "diagm": (1, 1), "sum": (1, 1),
-    "norm": (1, 1), "logsumexp": (1, 1), "softmax": (1, 1), "eye": (1, 1), "ones": (1, 2),
+    "kron": (2, 2), "vec": (1, 1), "diag": (1, 1), "diagm": (1, 1),
+    "eye": (1, 1), "ones": (1, 2),
     "zeros": (1, 2), "outer": (2, 2), "mpow": (2, 2), "commutation": (2, 2),
-    **{f: (1, 1) for f in E.ELEMENTWISE},
+    # sum, mean, max, min, norm, logsumexp, softmax, log_softmax: calls_reductions.py
+    # abs: calls_complex.py (the modulus for complex arguments, the entrywise abs otherwise)
+    **{f: (1, 1) for f in E.ELEMENTWISE if f not in SPELLED_APART and f != "abs"},
 }  # fmt: skip
 
 # the families of functions in `calls_*.py` modules register themselves in CALLS
@@ -1236,7 +1241,7 @@ class _Reader:
         args = [self.tr(a, depth) for a in node.args]
         a = args[0]
         if fname in E.ELEMENTWISE:
-            return E.Func(fname, a)
+            return stable_forms.entrywise(fname, a)
         if fname == "trace":
             E.Trace(a)
             return E.trace(a)
@@ -1278,18 +1283,6 @@ class _Reader:
         if fname == "diagm":
             E.Diagm(a)
             return E.diagm(a)
-        if fname == "sum":
-            return E.summation(a)
-        if fname == "norm":
-            if a.is_scalar:
-                self.fail_node("norm needs an array, got a scalar", node)
-            return E.Norm(a)
-        if fname == "logsumexp":
-            if a.is_scalar:
-                return a
-            return E.LogSumExp(a)
-        if fname == "softmax":
-            return E.Softmax(a)
         if fname == "outer":
             b = args[1]
             if not (E.is_vector_shape(a.shape) and E.is_vector_shape(b.shape)):

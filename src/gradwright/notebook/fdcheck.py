@@ -5,6 +5,7 @@ Pure NumPy (no widgets, no plotting), so that the comparison is testable on its 
 
 from __future__ import annotations
 
+import inspect
 import math
 import time
 from dataclasses import dataclass, field
@@ -291,7 +292,8 @@ class _Evaluator:
         if method == "complex step":
             # the generated functions refuse complex arrays for real-declared symbols; the
             # complex step is the one place where a complex input is meant
-            flag = self.function.__globals__.get("_GW_COMPLEX_STEP")
+            inner = inspect.unwrap(self.function)  # the generated function behind wrappers
+            flag = getattr(inner, "__globals__", {}).get("_GW_COMPLEX_STEP")
             if flag is not None:
                 flag.append(True)
             try:

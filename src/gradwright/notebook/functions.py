@@ -7,7 +7,7 @@ and the `(value, flat gradient)` objective for `scipy.optimize.minimize(..., jac
 from __future__ import annotations
 
 import inspect
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 
 import numpy as np
 
@@ -28,6 +28,12 @@ class Injected:
 
 def _named(fn, name: str, positional, keywords, doc: str):
     def wrapper(*args, **kwargs):
+        if len(args) > len(positional):  # name the function the user called, and the fix
+            shown = ", ".join([*positional, *(f"{k}=..." for k in keywords)])
+            raise TypeError(
+                f"{name}() got {len(args)} positional arguments: pass arrays by "
+                f"keyword: {name}({shown})"
+            )
         return fn(*args, **kwargs)
 
     wrapper.__name__ = wrapper.__qualname__ = name
@@ -52,169 +58,46 @@ def _shape_words(shape) -> str:
     return "(" + ", ".join(str(d) for d in shape) + (",)" if len(shape) == 1 else ")")
 
 
-def _prod(values) -> int:
-    out = 1
-    for v in values:
-        out *= int(v)
-    return out
-
-
-@dataclass
 class Packer:
-    """Flattens the variables (in wrt order, each in NumPy's C order) into one vector and back.
+    """The magic's `pack`/`unpack`/`objective`: thin wrappers over the core `Objective`.
 
-    Shapes come from the last `pack` call, or from the dims of constants passed to `unpack`;
-    with one dim still unknown it is solved from the vector's length.
+    The layout is the core's (`gradwright.fitting.Layout`): variables in wrt order, each
+    column-major (free entries only for structured matrices). `unpack` returns the variable,
+    or a tuple in wrt order; the objective takes the constants by keyword.
     """
 
-    variables: tuple
-    symbolic: dict  # variable -> declared shape (dims as str or int)
-    constant_shapes: dict  # every other input -> declared shape
-    shapes: dict = field(default_factory=dict)  # variable -> concrete shape, from `pack`
-    #: complex variables are packed as their real parts, then their imaginary parts; the
-    #: gradient G = ∂f/∂Re + i ∂f/∂Im then packs to the real gradient over those entries
-    complex_vars: frozenset = frozenset()
+    def __init__(self, derivation):
+        from ..fitting import Layout
 
-    def _entries(self, var, shape) -> int:
-        return _prod(shape) * (2 if var in self.complex_vars else 1)
+        self.derivation = derivation
+        self.layout = Layout(derivation)
+        self.variables = self.layout.variables
 
     @classmethod
     def for_derivation(cls, derivation) -> Packer:
-        symbolic = {v: tuple(derivation.symbols[v].shape) for v in derivation.variables}
-        others = {
-            name: tuple(info.shape)
-            for name, info in derivation.symbols.items()
-            if name not in symbolic and info.role == "constant"
-        }
-        field_of = getattr(derivation, "field", None)
-        complex_vars = frozenset(
-            v for v in derivation.variables if field_of is not None and field_of(v) == "complex"
-        )
-        return cls(tuple(derivation.variables), symbolic, others, complex_vars=complex_vars)
+        return cls(derivation)
 
     def pack(self, *values, **arrays) -> np.ndarray:
         """`pack(U=U0, V=V0)` (or positionally in wrt order) -> 1-D float array."""
-        if values and arrays:
-            raise TypeError("pass the variables either by name or in order, not both")
-        if values:
-            if len(values) == 1 and len(self.variables) > 1 and isinstance(values[0], tuple):
-                values = values[0]
-            if len(values) != len(self.variables):
-                raise TypeError(
-                    f"expected {len(self.variables)} arrays: {', '.join(self.variables)}"
-                )
-            arrays = dict(zip(self.variables, values))
-        missing = [v for v in self.variables if v not in arrays]
-        if missing:
-            raise TypeError(
-                f"pack needs {', '.join(missing)} (the variables: {', '.join(self.variables)})"
-            )
-        parts = []
-        for var in self.variables:
-            is_complex = var in self.complex_vars
-            value = np.asarray(arrays[var], dtype=complex if is_complex else float)
-            if value.ndim != len(self.symbolic[var]):
-                raise ValueError(
-                    f"{var} has {value.ndim} axes; the block declares "
-                    f"{_shape_words(self.symbolic[var])}"
-                )
-            self.shapes[var] = value.shape
-            if is_complex:
-                parts += [value.real.ravel(), value.imag.ravel()]
-            else:
-                parts.append(value.ravel())
-        return np.concatenate(parts) if parts else np.zeros(0)
-
-    def _concrete(self, length: int, constants: dict) -> dict:
-        bound: dict = {}
-        for name, shape in self.constant_shapes.items():
-            if name in constants:
-                for dim, size in zip(shape, np.shape(constants[name])):
-                    bound.setdefault(str(dim), int(size))
-        for var, shape in self.shapes.items():
-            for dim, size in zip(self.symbolic[var], shape):
-                bound.setdefault(str(dim), int(size))
-
-        def resolve(extra):
-            known = {**bound, **extra}
-            out = {}
-            for var, shape in self.symbolic.items():
-                dims = []
-                for dim in shape:
-                    if isinstance(dim, int) or str(dim).isdigit():
-                        dims.append(int(dim))
-                    elif str(dim) in known:
-                        dims.append(known[str(dim)])
-                    else:
-                        return None
-                out[var] = tuple(dims)
-            return out
-
-        shapes = resolve({})
-        if shapes is None:
-            unknown = sorted(
-                {
-                    str(d)
-                    for s in self.symbolic.values()
-                    for d in s
-                    if not (isinstance(d, int) or str(d).isdigit()) and str(d) not in bound
-                }
-            )
-            if len(unknown) == 1:
-                for guess in range(1, length + 1):
-                    trial = resolve({unknown[0]: guess})
-                    total = sum(self._entries(v, s) for v, s in trial.items())
-                    if total == length:
-                        shapes = trial
-                        break
-                    if total > length:
-                        break
-            if shapes is None:
-                raise ValueError(
-                    f"cannot tell the sizes of {', '.join(unknown)}: call pack(...) once with "
-                    "arrays of the right shapes, or pass the constants that carry these dims"
-                )
-        total = sum(self._entries(v, s) for v, s in shapes.items())
-        if total != length:
-            raise ValueError(f"the vector has {length} entries; the variables need {total}")
-        return shapes
+        return self.layout.pack(*values, **arrays)
 
     def unpack(self, flat, *, as_dict: bool = False, **constants):
         """1-D vector -> the variable's array, or a tuple of arrays in wrt order."""
-        flat = np.asarray(flat)
-        shapes = self._concrete(flat.size, constants)
-        out, start = {}, 0
-        for var in self.variables:
-            size = _prod(shapes[var])
-            piece = flat[start : start + size].reshape(shapes[var])
-            if var in self.complex_vars:
-                start += size
-                piece = piece + 1j * flat[start : start + size].reshape(shapes[var])
-            out[var] = piece if piece.ndim else piece[()]
-            start += size
+        self.layout.bind(constants)
+        out = self.layout.unpack(flat)
         if as_dict:
             return out
         return out[self.variables[0]] if len(self.variables) == 1 else tuple(out.values())
 
-    def objective(self, value_and_gradient):
+    def objective(self, value_and_gradient=None):
         """`objective(flat, **constants) -> (value, flat gradient)` for `minimize(jac=True)`."""
-        variables = self.variables
+        from ..fitting import Objective, _with
+
+        core = Objective(self.derivation)
+        core.layout = self.layout  # shapes learnt by pack() serve the objective too
 
         def objective(flat, **constants):
-            arrays = dict(constants)
-            arrays.update(self.unpack(flat, as_dict=True, **constants))
-            value, grads = value_and_gradient(**arrays)
-            if len(variables) == 1:
-                grads = (grads,)
-            parts = []
-            for var, g in zip(variables, grads):
-                if var in self.complex_vars:
-                    g = np.asarray(g)
-                    parts += [np.real(g).ravel(), np.imag(g).ravel()]
-                else:
-                    parts.append(np.asarray(g, dtype=float).ravel())
-            flat_grad = np.concatenate(parts)
-            return float(value), flat_grad
+            return _with(core, constants)(flat)
 
         return objective
 
@@ -317,7 +200,7 @@ def injections(derivation, name: str) -> list[Injected]:
         )
     )
     if d.is_scalar:
-        objective = packer.objective(d.value_and_gradient_function())
+        objective = packer.objective()
         constants = [a for a in args if a not in variables]
         objective = _named(
             objective,

@@ -17,6 +17,17 @@ class CostModel:
         self.hinted = frozenset(hinted)  # dims the user gave sizes for: decided here, not later
         self._orders: dict = {}
         self._flops: dict = {}
+        self._samples: dict = {}  # the models of sampled sizes, kept so their caches are reused
+
+    def sample_models(self, names) -> list:
+        """Cost models at sampled sizes of `names` (for choices the sizes decide)."""
+        key = frozenset(names)
+        models = self._samples.get(key)
+        if models is None:
+            from .calltime import sample_sizes  # (calltime builds on this module)
+
+            models = self._samples[key] = [CostModel(s) for s in sample_sizes(names)]
+        return models
 
     def dim(self, d) -> float:
         if d is None:
@@ -147,7 +158,20 @@ def _appears_as_result(e: E.Expr, name: str) -> bool:
 
 
 def lower(e: E.Expr, cost: CostModel, free=frozenset()) -> E.Expr:
-    """inv(A) @ B -> solve(A, B); distribute products over sums where the cost model says so."""
+    """inv(A) @ B -> solve(A, B); distribute products over sums where the cost model says so;
+    a solve with a sum distributed where every term becomes a solve computed anyway or one
+    with a single right-hand side."""
+    if free and len(free) <= 400:  # what is computed anyway is free transposed too
+        free = free | {
+            E.transpose(x) for x in free if type(x) in (E.Add, E.MatMul, E.Named, E.Func)
+        }
+    first = _lower(e, cost, free, frozenset())
+    solves = frozenset(n for n in E.walk(first) if type(n) is E.Solve)
+    solves |= frozenset(n for x in free for n in E.walk(x) if type(n) is E.Solve)
+    return _lower(e, cost, free, solves)
+
+
+def _lower(e: E.Expr, cost: CostModel, free, solves) -> E.Expr:
     memo: dict = {}
 
     def go(x: E.Expr) -> E.Expr:
@@ -165,10 +189,44 @@ def lower(e: E.Expr, cost: CostModel, free=frozenset()) -> E.Expr:
                 out = _distribute(out, cost, free, go)
                 if type(out) is E.MatMul:
                     out = _solves(out)
+            out = _thin_solve(out, solves)
         memo[x] = out
         return out
 
     return go(e)
+
+
+def _thin_solve(x: E.Expr, solves=frozenset()) -> E.Expr:
+    """solve(A, v w) = solve(A, v) w for a column v: one right-hand side instead of many; a
+    solve with a sum distributed when each term becomes a solve in `solves` (computed anyway)
+    or one of those thin solves."""
+    if type(x) is E.MatMul and type(x.args[-1]) is E.Solve:
+        last = _thin_solve(x.args[-1], solves)
+        return x if last is x.args[-1] else E.matmul(*x.args[:-1], last)
+    if type(x) is E.Transpose and type(x.args[0]) is E.Solve:
+        inner = _thin_solve(x.args[0], solves)
+        return x if inner is x.args[0] else E.transpose(inner)
+    if type(x) is not E.Solve:
+        return x
+    a, b = x.args
+    if type(b) is E.MatMul and len(b.args) > 1 and E.is_col(b.args[0].shape):
+        return E.matmul(E.Solve(a, b.args[0]), *b.args[1:])
+    if type(b) is E.Mul and len(b.array_factors) == 1:
+        inner = E.Solve(a, b.array_factors[0])
+        thin = _thin_solve(inner)
+        return x if thin is inner else E.mul(*b.scalar_factors, thin)
+    if solves and type(b) is E.Add:
+        terms = [_thin_solve(E.Solve(a, t)) for t in b.args]
+        if all(t in solves or type(t) is not E.Solve for t in terms):
+            return E.add(*terms)
+    return x
+
+
+def _larger_than(e: E.Expr, limit: int) -> bool:
+    for count, _node in enumerate(E.walk(e)):
+        if count >= limit:
+            return True
+    return False
 
 
 def _unwrap(f: E.Expr) -> E.Expr:
@@ -190,13 +248,14 @@ def _distribute(m: E.MatMul, cost: CostModel, free, go) -> E.Expr:
             distributed = sum(model.flops(t, free) for t in terms)
             return distributed + model.size(m.shape) * len(terms) < 0.8 * factored
 
-        from .calltime import sample_sizes, sym_flops  # (calltime builds on this module)
+        from .calltime import sym_flops  # (calltime builds on this module)
 
         names = {n for x in E.walk(m) for d in x.shape if d is not None for n in d.names}
-        if names <= cost.hinted:
+        if names <= cost.hinted or _larger_than(m, 200):
+            # (past a few hundred parts, sampling sizes costs more than the choice can save)
             votes = {cheaper(cost)}
         else:
-            votes = {cheaper(CostModel(s)) for s in sample_sizes(names)}
+            votes = {cheaper(model) for model in cost.sample_models(names)}
         if votes == {True}:
             return go(E.add(*terms))
         if votes == {True, False}:  # the sizes decide: both forms, chosen at call time

@@ -5,7 +5,9 @@ from __future__ import annotations
 import re
 
 from .. import expr as E
+from ..entrywise import EXTRA_ENTRYWISE
 from . import precedence as P
+from .axis_printing import LatexAxisMixin
 from .base import Printer, fraction_parts, join_terms, number_text, split_numerator
 
 #: between the factors of a product, so that `days S` or `dS S` never read as one word
@@ -59,11 +61,23 @@ def latex_number(text: str) -> str:
     return power if mantissa == "1" else rf"{mantissa} \times {power}"
 
 
+def _reads_as_number(e: E.Expr) -> bool:
+    """A dim's size, pi, tr(I) or sum(1): written in front of the other factors."""
+    if type(e).__name__ in ("SizeOf", "Pi"):
+        return True
+    return type(e) in (E.Trace, E.Sum) and type(e.args[0]) in (E.Identity, E.Ones)
+
+
+def differential_latex(name: str) -> str:
+    """d X, with a thin space before a multi-letter name (d days, not "ddays")."""
+    return r"\mathrm{d}" + (THIN if name.startswith(r"\mathrm") else "") + name
+
+
 def dim_latex(d) -> str:
     return r" \cdot ".join(str(d).split("*"))
 
 
-class LatexPrinter(Printer):
+class LatexPrinter(LatexAxisMixin, Printer):
     default_settings = {
         "dim_subscripts": False,  # I_n, 1_n rather than I, 1
     }
@@ -92,12 +106,12 @@ class LatexPrinter(Printer):
         return symbol_latex(e.name)
 
     def _print_Differential(self, e):
-        return r"\mathrm{d}" + symbol_latex(e.symbol.name)
+        return differential_latex(symbol_latex(e.symbol.name))
 
     def _print_D(self, e):
         inner = e.args[0]
         if type(inner) in (E.Symbol, E.Named):
-            return r"\mathrm{d}" + self._print(inner)
+            return differential_latex(self._print(inner))
         return r"\mathrm{d}\left(" + self._print(inner) + r"\right)"
 
     def _print_Const(self, e):
@@ -158,8 +172,12 @@ class LatexPrinter(Printer):
             bottom.insert(0, str(parts[1]))
         elif coef != 1:
             top.append(latex_number(number_text(coef)))
+        scal.sort(key=lambda f: 0 if _reads_as_number(f) else 1)  # n log det S, not log det S n
+        after: list[str] = []  # \frac{n}{2} tr(...): only numbers and names over a plain divisor
         for f in scal:
-            top.append(self.paren(f, P.PRODUCT + 1 if type(f) is not E.MatMul else P.PRODUCT))
+            text = self.paren(f, P.PRODUCT + 1 if type(f) is not E.MatMul else P.PRODUCT)
+            simple = _reads_as_number(f) or type(f) in (E.Symbol, E.Named)
+            (top if simple or scalars_den else after).append(text)
         had = []
         if arrs or arrays_den:
             level = P.PRODUCT + 1 if len(arrs) + len(arrays_den) > 1 else P.PRODUCT
@@ -167,10 +185,11 @@ class LatexPrinter(Printer):
             for d in arrays_den:
                 had.append(self.paren(d, P.POSTFIX + 1) + r"^{\circ -1}")
         hadamard = r" \circ ".join(had)
+        rest = after + ([hadamard] if hadamard else [])
         if bottom:
             frac = rf"\frac{{{THIN.join(top) or '1'}}}{{{THIN.join(bottom)}}}"
-            return f"{frac}{THIN}{hadamard}" if hadamard else frac
-        return THIN.join(top + ([hadamard] if hadamard else [])) or "1"
+            return THIN.join([frac, *rest])
+        return THIN.join(top + rest) or "1"
 
     def _print_MatMul(self, e):
         return THIN.join(self.paren(f, P.PRODUCT + 1) for f in e.args)
@@ -211,6 +230,8 @@ class LatexPrinter(Printer):
     # --- functions -----------------------------------------------------------------------------
 
     def _print_Func(self, e):
+        if e.name in EXTRA_ENTRYWISE:
+            return self.extra_func(e)
         if e.name == "sqrt":
             return rf"\sqrt{{{self._print(e.arg)}}}"
         return self.call(FUNC_LATEX[e.name], e.arg)
@@ -241,6 +262,9 @@ class LatexPrinter(Printer):
 
     def _print_Diagm(self, e):
         return self.call(r"\operatorname{Diag}", e.args[0])
+
+    def _print_Tril(self, e):
+        return self.call(r"\operatorname{tril}", e.args[0])
 
     def _print_Sum(self, e):
         a = e.args[0]

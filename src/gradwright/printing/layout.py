@@ -82,9 +82,9 @@ class LineBreaker:
     def lines(self, e: E.Expr) -> list[str]:
         text = self.printer.doprint(e)
         if (
-            latex_width(text) <= self.budget
+            len(text) > self.MAX_CHARACTERS  # first: measuring a huge text is itself slow
             or text.startswith(r"\text{(too large")
-            or len(text) > self.MAX_CHARACTERS
+            or latex_width(text) <= self.budget
         ):
             return [text]
         return self._lines(e, text)
@@ -131,18 +131,27 @@ class LineBreaker:
                 return self._pack(pieces)
         return self._around_child(e, text)
 
+    def _narrow(self, by: float, c: E.Expr, text: str) -> list[str]:
+        """c's lines with room left for what goes around them on the same line."""
+        saved = self.budget
+        self.budget = max(8.0, saved - by)
+        try:
+            return self._lines(c, text)
+        finally:
+            self.budget = saved
+
     def _child(self, c: E.Expr, level: int) -> list[str]:
         text = self._text(c)
         if P.latex_precedence(c) < level:
             if self._fits(text):
                 return [rf"\left({text}\right)"]
-            inner = self._lines(c, text)
+            inner = self._narrow(2.5, c, text)  # \Bigl( ... \Bigr) and an operator before it
             return (
                 [r"\Bigl(" + inner[0], *inner[1:-1], inner[-1] + r"\Bigr)"]
                 if len(inner) > 1
                 else [r"\Bigl(" + inner[0] + r"\Bigr)"]
             )
-        return self._lines(c, text)
+        return self._narrow(1.5, c, text)  # an operator may start the line
 
     def _around_child(self, e: E.Expr, text: str) -> list[str]:
         """`head\\left(child\\right)tail` with the child broken inside big parentheses."""
@@ -156,7 +165,7 @@ class LineBreaker:
             return [text]
         c, inner, wrapped = best
         head, _, tail = text.partition(wrapped)
-        sub = self._lines(c, inner)
+        sub = self._narrow(latex_width(head) + latex_width(tail) + 1.5, c, inner)
         if len(sub) == 1:
             return [text]
         return [head + r"\Bigl(" + sub[0], *sub[1:-1], sub[-1] + r"\Bigr)" + tail]
@@ -202,6 +211,8 @@ _FORMULA_SUBS = (
     (re.compile("⊗"), r"\\otimes "),
     (re.compile("[∘⊙]"), r"\\circ "),
     (re.compile(r"\s*=\s*"), " = "),
+    # juxtaposed factors keep a thin space: A dX B, not "AdXB"
+    (re.compile(r"(?<=[A-Za-z0-9)}])\s+(?=[A-Za-z(\\])(?!\\otimes|\\circ)"), r"\\,"),
 )
 
 

@@ -23,10 +23,13 @@ _TEXT_NAMES = {
     M.Eigvalsh: "eigvalsh",
     M.EigvalshJvp: "eigvalsh_jvp",
     M.EigvalshVjp: "eigvalsh_vjp",
+    M.EigvalshVjpJvp: "eigvalsh_vjp_jvp",
+    M.TrilHalf: "tril_half",
     M.Cholesky: "cholesky",
     M.CholeskyJvp: "cholesky_jvp",
     M.CholeskyVjp: "cholesky_vjp",
     M.ExpmFrechet: "expm_frechet",
+    M.LogmFrechet: "logm_frechet",
     M.SolveSylvester: "solve_sylvester",
     M.SolveContinuousLyapunov: "solve_continuous_lyapunov",
     M.SolveDiscreteLyapunov: "solve_discrete_lyapunov",
@@ -80,6 +83,18 @@ def _latex_eigvalsh_vjp(self, e):
     return rf"{u} \operatorname{{Diag}}\left({self._print(g)}\right) {u}^{{\top}}"
 
 
+def _latex_eigvalsh_vjp_jvp(self, e):
+    s, g, d = e.args
+    u = _basis(self, s)
+    g1 = rf"\left({self._print(g)}\right)^{{[1]}}"
+    inner = rf"{u}^{{\top}} {self.paren(d, P.PRODUCT + 1)} {u}"
+    return rf"{u} \left({g1} \circ \left({inner}\right)\right) {u}^{{\top}}"
+
+
+def _latex_tril_half(self, e):
+    return rf"\Phi\left({self._print(e.args[0])}\right)"
+
+
 def _latex_cholesky(self, e):
     return self.call(r"\operatorname{chol}", e.args[0])
 
@@ -124,6 +139,11 @@ def _latex_expm_frechet(self, e):
     return rf"L_{{\exp}}\left({self._print(a)}, {self._print(d)}\right)"
 
 
+def _latex_logm_frechet(self, e):
+    a, d = e.args
+    return rf"L_{{\log}}\left({self._print(a)}, {self._print(d)}\right)"
+
+
 def _latex_sylvester(self, e):
     return r"\operatorname{sylv}\left(" + ", ".join(self._print(a) for a in e.args) + r"\right)"
 
@@ -142,19 +162,22 @@ M.MatrixFunction.latex_precedence = property(
 )
 
 # the forms written as products (U ... Uᵀ, L Φ(...)) take parentheses before a superscript
-for _cls in (M.EigvalshVjp, M.CholeskyJvp, M.SpectralFrechet):
+for _cls in (M.EigvalshVjp, M.EigvalshVjpJvp, M.CholeskyJvp, M.SpectralFrechet):
     _cls.latex_precedence = P.PRODUCT
 
 for _cls, _fn in {
     M.Eigvalsh: _latex_eigvalsh,
     M.EigvalshJvp: _latex_eigvalsh_jvp,
     M.EigvalshVjp: _latex_eigvalsh_vjp,
+    M.EigvalshVjpJvp: _latex_eigvalsh_vjp_jvp,
+    M.TrilHalf: _latex_tril_half,
     M.Cholesky: _latex_cholesky,
     M.CholeskyJvp: _latex_cholesky_jvp,
     M.CholeskyVjp: _latex_cholesky_vjp,
     M.MatrixFunction: _latex_matrix_function,
     M.SpectralFrechet: _latex_spectral_frechet,
     M.ExpmFrechet: _latex_expm_frechet,
+    M.LogmFrechet: _latex_logm_frechet,
     M.SolveSylvester: _latex_sylvester,
     M.SolveContinuousLyapunov: _latex_lyapunov,
     M.SolveDiscreteLyapunov: _latex_dlyapunov,
@@ -193,12 +216,15 @@ for _cls, _method in {
     M.Eigvalsh: _code_helper("_gw_eigvalsh", label=True),
     M.EigvalshJvp: _code_helper("_gw_eigvalsh_jvp", label=True),
     M.EigvalshVjp: _code_helper("_gw_eigvalsh_vjp", label=True),
+    M.EigvalshVjpJvp: _code_helper("_gw_eigvalsh_vjp_jvp", label=True),
+    M.TrilHalf: _code_helper("_gw_tril_half"),
     M.Cholesky: _code_helper("_gw_cholesky", label=True),
     M.CholeskyJvp: _code_helper("_gw_cholesky_jvp"),
     M.CholeskyVjp: _code_helper("_gw_cholesky_vjp"),
     M.MatrixFunction: _code_matrix_function,
     M.SpectralFrechet: _code_helper("_gw_spectral_frechet", label=True),
     M.ExpmFrechet: _code_helper("_gw_expm_frechet"),
+    M.LogmFrechet: _code_helper("_gw_logm_frechet"),
     M.SolveSylvester: _code_helper("_gw_solve_sylvester"),
     M.SolveContinuousLyapunov: _code_helper("_gw_solve_continuous_lyapunov"),
     M.SolveDiscreteLyapunov: _code_helper("_gw_solve_discrete_lyapunov"),

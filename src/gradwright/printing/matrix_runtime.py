@@ -67,6 +67,29 @@ def _gw_eigvalsh_vjp(a, g, label):
             break
     return (u * g) @ u.T
 """,
+    "_gw_eigvalsh_vjp_jvp": """
+def _gw_eigvalsh_vjp_jvp(a, g, e, label):
+    \"\"\"U (g^[1] o (U^T E U)) U^T, g^[1]_ij = (g_i - g_j)/(lambda_i - lambda_j): the derivative
+    of U Diag(g) U^T along E for fixed g (from dU = U (Omega o (U^T E U)), Magnus 1985).\"\"\"
+    w, u = _gw_eigh(a, label, "eigvalsh")
+    dg = g[:, None] - g[None, :]
+    dw = w[:, None] - w[None, :]
+    tol = 1.5e-8 * max(1.0, np.max(np.abs(w), initial=0.0))
+    close = np.abs(dw) <= tol
+    if np.any(close & (np.abs(dg) > 1e-6 * max(1.0, np.max(np.abs(g), initial=0.0)))):
+        warnings.warn(
+            f"eigenvalues of {label} are numerically repeated and the target weighs them "
+            "differently: its second derivative does not exist there",
+            RuntimeWarning,
+            stacklevel=3,
+        )
+    g1 = np.where(close, 0.0, dg / np.where(close, 1.0, dw))
+    return u @ (g1 * (u.T @ (0.5 * (e + e.T)) @ u)) @ u.T
+""",
+    "_gw_tril_half": """
+def _gw_tril_half(x):
+    return np.tril(x, -1) + 0.5 * np.diag(np.diagonal(x))
+""",
     "_gw_cholesky": """
 def _gw_cholesky(a, label):
     try:
@@ -157,6 +180,18 @@ def _gw_expm_frechet(a, e):
 
     return expm_frechet(a, e, compute_expm=False)
 """,
+    "_gw_logm_frechet": """
+def _gw_logm_frechet(a, e):
+    \"\"\"The Frechet derivative of the principal logm at A along E: the upper-right block of
+    logm([[A, E], [0, A]]) (Higham, Functions of Matrices, 2008, eq. (3.16)).\"\"\"
+    from scipy.linalg import logm
+
+    n = a.shape[0]
+    out = logm(np.block([[a, e], [np.zeros_like(a), a]]))[:n, n:]
+    if np.iscomplexobj(out):
+        out = out.real  # a real A with a real logm has a real derivative
+    return out
+""",
     "_gw_solve_sylvester": """
 def _gw_solve_sylvester(a, b, q):
     from scipy.linalg import solve_sylvester
@@ -183,6 +218,7 @@ DEPENDS = {
     "_gw_eigvalsh": ("_gw_symmetric",),
     "_gw_eigvalsh_jvp": ("_gw_eigh", "_gw_symmetric"),
     "_gw_eigvalsh_vjp": ("_gw_eigh", "_gw_symmetric"),
+    "_gw_eigvalsh_vjp_jvp": ("_gw_eigh", "_gw_symmetric"),
     "_gw_cholesky": ("_gw_symmetric",),
     "_gw_matrix_function": ("_gw_eigh", "_gw_symmetric"),
     "_gw_spectral_frechet": ("_gw_eigh", "_gw_symmetric"),

@@ -12,7 +12,9 @@ from dataclasses import dataclass, field
 
 from .. import expr as E
 from ..complex_nodes import COMPLEX_WORDS
+from ..entrywise import EXTRA_ENTRYWISE
 from . import precedence as P
+from .axis_printing import AXIS_HELPERS, NumpyAxisMixin
 from .base import split_numerator
 from .calltime import (
     CallTimeChoice,
@@ -30,14 +32,18 @@ from .costmodel import (  # noqa: F401 - public names kept importable from here
     lower,
 )
 from .runtime import FUNC_CODE, HELPERS  # noqa: F401
+from .structure import known_spd
 from .text import TextPrinter
+
+HELPERS.update(AXIS_HELPERS)
+HELPERS.update(spec.helper for spec in EXTRA_ENTRYWISE.values() if spec.helper is not None)
 
 # ---------------------------------------------------------------------------------------------
 # printing with temporaries
 # ---------------------------------------------------------------------------------------------
 
 
-class NumpyPrinter(TextPrinter):
+class NumpyPrinter(NumpyAxisMixin, TextPrinter):
     names = {
         "trace": "np.trace", "det": "np.linalg.det", "kron": "np.kron", "sum": "np.sum",
         "norm": "np.linalg.norm", "outer": "np.outer", "eye": "np.eye", "ones": "np.ones",
@@ -55,6 +61,11 @@ class NumpyPrinter(TextPrinter):
         if name is not None:
             return name
         return super()._print(e)
+
+    def _print_LeastSquares(self, e):
+        a, b = e.args
+        self.use("_gw_lstsq")
+        return f"_gw_lstsq({self._print(a)}, {self._print(b)}, {self.label(a)})"
 
     def _print_CallTimeChoice(self, e):
         own, dist, own_cost, dist_cost = e.args
@@ -131,16 +142,41 @@ class NumpyPrinter(TextPrinter):
                     return f"{self.paren(other, P.PRODUCT + 1)} * {adj}"
         return None
 
+    def _print_MatMul(self, e):
+        # 1 bᵀ and b 1ᵀ (NumPy broadcasting written out): a read-only view, no array formed
+        if len(e.args) == 2 and E.is_matrix_shape(e.shape):
+            left, right = (_ones_side(f) for f in e.args)
+            if left == "col" and right is None:
+                return f"np.broadcast_to({self._print(e.args[1])}, {self.shape_tuple(e.shape)})"
+            if right == "row" and left is None:
+                col = f"{self.wrap(self._print(e.args[0]))}[:, None]"
+                return f"np.broadcast_to({col}, {self.shape_tuple(e.shape)})"
+        return super()._print_MatMul(e)
+
+    def _reuse_products(self, seg: list) -> list:
+        """A run of factors whose product is already a temporary is read from it."""
+        temps = self.gen.temps
+        n = len(seg)
+        if n < 3 or n > 12 or not temps:
+            return seg
+        for length in range(n - 1, 1, -1):
+            for i in range(n - length + 1):
+                node = E.matmul(*seg[i : i + length])
+                if node in temps:
+                    return self._reuse_products([*seg[:i], node, *seg[i + length :]])
+        return seg
+
     def segment(self, seg) -> str:
         """One product without unit inner axes: diagonal factors folded in, cost-ordered."""
+        seg = self._reuse_products(list(seg))
         items = []  # (text, shape, is_simple)
         pending_diag = None
         for f in seg:
             if type(f) is E.Diagm and self.gen.temps.get(f) is None:
                 v = self._print(f.args[0])
                 if items:
-                    text, shape, _ = items.pop()
-                    items.append((f"{self.wrap(text)} * {self.wrap(v)}", shape, False))
+                    text, shape = items.pop()[:2]
+                    items.append((f"{self.wrap(text)} * {self.wrap(v)}", shape, False, None))
                 else:
                     pending_diag = v
                 continue
@@ -151,14 +187,23 @@ class NumpyPrinter(TextPrinter):
                 else:
                     text = f"{self.wrap(pending_diag)} * {self.wrap(text)}"
                 pending_diag = None
-            items.append((text, f.shape, True))
+            items.append((text, f.shape, True, _ones_side(f)))
         if pending_diag is not None:  # the chain was only diagonal factors
             return f"np.diag({pending_diag})"
+        # products with a vector of ones are sums: no ones array, no matrix-vector product
+        if len(items) == 2 and items[0][3] == "row" and items[1][3] == "col":
+            return self.dim(items[1][1][0])
+        while len(items) >= 2 and items[-1][3] == "col" and E.is_matrix_shape(items[-2][1]):
+            text, shape = items[-2][:2]
+            items[-2:] = [(f"np.sum({text}, axis=1)", (shape[0], None), False, None)]
+        while len(items) >= 2 and items[0][3] == "row" and E.is_matrix_shape(items[1][1]):
+            text, shape = items[1][:2]
+            items[:2] = [(f"np.sum({text}, axis=0)", (None, shape[1]), False, None)]
         if len(items) == 1:
             return items[0][0]
         if len(items) == 2:
             return f"{self.wrap(items[0][0])} @ {self.wrap(items[1][0])}"
-        shapes = [shape for _, shape, _ in items]
+        shapes = [item[1] for item in items]
         trees = chain_candidates(shapes, self.gen.cost)
 
         def emit(t):
@@ -198,6 +243,8 @@ class NumpyPrinter(TextPrinter):
         return f"{self.wrap(self._print(a))}**{self.wrap(self._print(k))}"
 
     def _print_Func(self, e):
+        if e.name in EXTRA_ENTRYWISE:
+            return self.extra_func(e)
         code = FUNC_CODE[e.name]
         if e.name == "sigmoid":
             self.use("_gw_sigmoid")
@@ -252,7 +299,7 @@ class NumpyPrinter(TextPrinter):
         return f"np.sum({self._print(a)})"
 
     def _spd_factor(self, a: E.Expr) -> str | None:
-        if E.is_spd(a) and self.gen.use_cholesky:
+        if known_spd(a) and self.gen.use_cholesky:
             self.use("_gw_cho")
             self.use("_gw_cho_solve")
             return self.gen.cholesky_for(a, self)
@@ -302,6 +349,9 @@ class NumpyPrinter(TextPrinter):
 
     def _print_Diagm(self, e):
         return f"np.diag({self._print(e.args[0])})"
+
+    def _print_Tril(self, e):
+        return f"np.tril({self._print(e.args[0])})"
 
     def _print_Kron(self, e):
         a, b = e.args
@@ -428,7 +478,9 @@ class CodeGen:
             name = f"_chol{len(self.cholesky)}"
             self.cholesky[a] = name
             self.uses_scipy = True
-            self.lines.append(f"    {name} = _gw_cho({printer._print(a)}, {printer.label(a)})")
+            declared = "" if E.is_spd(a) else ", False"
+            factor = f"_gw_cho({printer._print(a)}, {printer.label(a)}{declared})"
+            self.lines.append(f"    {name} = {factor}")
         return name
 
     def signature(self, direction: str | None) -> str:
@@ -489,17 +541,38 @@ class CodeGen:
 
         visited: set = set()
 
+        def remember(node, name):
+            self.temps[node] = name
+            # (AB)ᵀ and BᵀAᵀ are one computation: the transposed form reads the temporary
+            if E.is_matrix_shape(node.shape) and type(node) not in (E.Symbol, E.Transpose):
+                flipped = E.transpose(node)
+                if flipped != node and flipped not in self.temps:
+                    self.temps[flipped] = f"{name}.T"
+
         def emit(node):
             if id(node) in visited:
                 return
             visited.add(id(node))
+            if type(node) is E.Named and node.name not in self.symbols:
+                body = node.body  # a definition is one temporary under its own name
+                visited.add(id(body))
+                for c in body.children:
+                    emit(c)
+                if node not in self.temps:
+                    known = self.temps.get(body)
+                    if known is None:
+                        known = temp_name(node)
+                        self.lines.append(f"    {known} = {printer._print(body)}")
+                        remember(body, known)
+                    remember(node, known)
+                return
             for c in node.children:
                 emit(c)
             if node in shared and node not in self.temps:
                 text = printer._print(node)
                 name = temp_name(node)
                 self.lines.append(f"    {name} = {text}")
-                self.temps[node] = name
+                remember(node, name)
 
         for o in spec.outputs:
             emit(o.expr)
@@ -535,6 +608,7 @@ def _shared_nodes(exprs) -> set:
     for e in exprs:
         count[e] = count.get(e, 0)
     inside: set = set()  # below a call-time choice: computed only if its branch is taken
+    parent: dict = {}
     while stack:
         x = stack.pop()
         if x in visited:
@@ -545,6 +619,7 @@ def _shared_nodes(exprs) -> set:
             continue
         for c in x.children:
             count[c] = count.get(c, 0) + 1
+            parent[c] = x
             if c not in visited:
                 stack.append(c)
         if type(x) is E.Sum and _is_square(x.args[0]) and not x.args[0].is_scalar:
@@ -557,7 +632,34 @@ def _shared_nodes(exprs) -> set:
             continue
         if type(node) is E.Named or k > 1 or node in inside:
             out.add(node)
+    # a node whose transpose is used too is one computation (the other reads `name.T`)
+    flippable = [
+        x
+        for x in count
+        if type(x) in (E.Add, E.Mul, E.MatMul, E.Func, E.Power)
+        and E.is_matrix_shape(x.shape)
+        and x not in out
+    ]
+    if len(flippable) <= MAX_FLIP_CHECKS:
+        flipped = {x for x in flippable if E.transpose(x) in count}
+        # only the outermost of them: the inner ones are computed once inside it anyway
+        out.update(x for x in flipped if parent.get(x) not in flipped and parent.get(x) not in out)
     return out
+
+
+#: transposed duplicates are looked for only among this many candidate nodes (bounded work)
+MAX_FLIP_CHECKS = 400
+
+
+def _ones_side(f: E.Expr) -> str | None:
+    """'col' for a column of ones, 'row' for a row of ones, else None."""
+    if type(f) is E.Ones and E.is_col(f.shape):
+        return "col"
+    if type(f) is E.Transpose and type(f.args[0]) is E.Ones and E.is_col(f.args[0].shape):
+        return "row"
+    if type(f) is E.Ones and E.is_row(f.shape):
+        return "row"
+    return None
 
 
 def _is_square(e: E.Expr) -> bool:

@@ -48,19 +48,37 @@ def _gw_logdet(a, label):
     return value
 """,
     "_gw_cho": """
-def _gw_cho(a, label):
+def _gw_cho(a, label, declared=True):
     # cho_factor reads one triangle only: an unsymmetric input would give a silently wrong
-    # answer; the tolerance is relative to the largest entry (common practice)
-    if np.max(np.abs(a - a.T), initial=0.0) > 1e-8 * max(1.0, np.max(np.abs(a), initial=0.0)):
-        raise ValueError(f"{label} is declared spd but is not symmetric")
+    # answer; the tolerance is relative to the largest entry and to the precision (common
+    # practice)
+    tol = max(1e-8, 1e3 * np.finfo(a.dtype).eps) * max(1.0, np.max(np.abs(a), initial=0.0))
+    if np.max(np.abs(a - a.T), initial=0.0) > tol:
+        if declared:
+            raise ValueError(f"{label} is declared spd but is not symmetric")
+        raise ValueError(
+            f"{label} is not symmetric, but it is built to be spd from the matrices declared "
+            "spd: check that they are symmetric"
+        )
     from scipy.linalg import cho_factor  # imported on first use: a fast first import
 
     try:
         return cho_factor(a, check_finite=False)
     except np.linalg.LinAlgError:
-        raise np.linalg.LinAlgError(
-            f"{label} is not positive definite (it is declared spd)"
-        ) from None
+        why = "it is declared spd" if declared else "it is built to be spd from spd matrices"
+        raise np.linalg.LinAlgError(f"{label} is not positive definite ({why})") from None
+""",
+    "_gw_lstsq": """
+def _gw_lstsq(a, b, label):
+    x, _res, rank, _sv = np.linalg.lstsq(a, b, rcond=None)
+    if rank < min(a.shape):
+        warnings.warn(
+            f"{label} does not have full column rank ({rank} of {a.shape[1]}): the stationary "
+            "point is not unique; this is the one of least norm",
+            RuntimeWarning,
+            stacklevel=3,
+        )
+    return x
 """,
     "_gw_cho_solve": """
 def _gw_cho_solve(factor, b):

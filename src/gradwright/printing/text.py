@@ -3,7 +3,9 @@
 from __future__ import annotations
 
 from .. import expr as E
+from ..entrywise import EXTRA_ENTRYWISE
 from . import precedence as P
+from .axis_printing import TextAxisMixin
 from .base import (
     Printer,
     chain_segments,
@@ -15,7 +17,7 @@ from .base import (
 )
 
 
-class TextPrinter(Printer):
+class TextPrinter(TextAxisMixin, Printer):
     """Prints in the formula language; subclasses change the function spellings."""
 
     default_settings: dict = {}
@@ -141,6 +143,8 @@ class TextPrinter(Printer):
         return f"{self.paren(a, P.ATOM)}**{self.paren(k, P.ATOM)}"
 
     def _print_Func(self, e):
+        if e.name in EXTRA_ENTRYWISE:
+            return self.extra_func(e)
         return f"{e.name}({self._print(e.arg)})"
 
     def _print_Trace(self, e):
@@ -173,6 +177,9 @@ class TextPrinter(Printer):
 
     def _print_Diagm(self, e):
         return self.fn("diagm", self._print(e.args[0]))
+
+    def _print_Tril(self, e):
+        return f"{self.names.get('tril', 'tril')}({self._print(e.args[0])})"
 
     def _print_Sum(self, e):
         return self.fn("sum", self._print(e.args[0]))

@@ -1,0 +1,52 @@
+"""Layout of printed steps: long formulas break at operators into lines within the width budget
+(the browser test checks the rendered widths; this checks every reference case quickly)."""
+
+from __future__ import annotations
+
+import pytest
+from core_cases import GRADIENT_CASES, JACOBIAN_CASES
+
+from gradwright import derive
+from gradwright.notebook.render import MATH_BUDGET, derivation_html, derivation_latex
+from gradwright.printing.layout import broken_lines, latex_width, rule_segments
+
+CASES = [c for c in GRADIENT_CASES + JACOBIAN_CASES if not c.xfail]
+LONG = (
+    "x: (p,)\nW1: (h, p)\nW2: (h, h)\nW3: (h, h)\nW4: (k, h)\n"
+    "g = tanh(W4 @ tanh(W3 @ tanh(W2 @ tanh(W1 @ x))))"
+)
+MANY_TERMS = "A: (n, n)\nB: (n, n)\nC: (n, n)\nf = " + " + ".join(
+    f"trace(A @ B @ A.T @ C @ A @ {m})" for m in ("B", "C", "B.T", "C.T", "A", "A.T")
+)
+
+
+@pytest.mark.parametrize("case", CASES, ids=[c.id for c in CASES])
+def test_every_line_of_every_step_fits(case):
+    d = derive(case.block, wrt=list(case.wrt))
+    for step in d.steps:
+        for line in broken_lines(step.expr, MATH_BUDGET):
+            assert latex_width(line) <= MATH_BUDGET, line
+
+
+@pytest.mark.parametrize("block,wrt", [(LONG, ["W1", "W4"]), (MANY_TERMS, ["A"])])
+def test_long_derivations_break_at_operators(block, wrt):
+    d = derive(block, wrt=wrt)
+    broken = 0
+    for step in d.steps:
+        lines = broken_lines(step.expr, MATH_BUDGET)
+        broken += len(lines) > 1
+        assert all(latex_width(line) <= MATH_BUDGET for line in lines), lines
+        for line in lines[1:]:  # a continuation starts with an operator or a factor, never ")"
+            assert not line.startswith((r"\right", ")")), line
+    assert broken, "a long derivation is broken over lines"
+    latex = derivation_latex(d)
+    assert r"&\qquad" in latex  # continuation lines sit in the aligned column
+    page = derivation_html(d)
+    assert page.count("<tr>") > len(d.steps)  # one table row per printed line
+
+
+def test_rule_names_split_into_words_and_formulas():
+    parts = rule_segments("rearrange under the trace: tr(A B) = tr(B A), tr(A) = tr(Aᵀ)")
+    kinds = [k for k, _ in parts]
+    assert kinds == ["text", "math", "text", "math"]
+    assert all("ᵀ" not in v for k, v in parts if k == "math")
