@@ -90,3 +90,14 @@ def test_value_and_gradient_agree_with_separate_functions():
     np.testing.assert_allclose(gv, d.gradient_function("V")(**a), rtol=1e-12)
     gu2, gv2 = d.gradient_function()(**a)
     np.testing.assert_allclose(gv2, gv, rtol=1e-12)
+
+
+def test_sums_and_traces_printed_as_dot_products_keep_their_parentheses():
+    # N / sum(r**2) once printed as `N / r @ r`, which NumPy reads as (N / r) @ r
+    d = derive(
+        "r: (n,)\nN: ()\nx: (n,)\nf = N / sum(r**2) + N / trace(outer(x, r)) - N / sum(r * x)",
+        wrt="N",
+    )
+    r, x = np.array([1.0, 2.0, 3.0]), np.array([0.5, -1.0, 2.0])
+    want = 2.0 / 14.0 + 2.0 / (x @ r) - 2.0 / (r @ x)  # by hand
+    assert abs(d.function()(r=r, x=x, N=2.0) - want) < 1e-14

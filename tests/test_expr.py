@@ -85,6 +85,7 @@ EXAMPLES.update(
         M.MatrixFunction: M.MatrixFunction("expm", A),
         M.SpectralFrechet: M.SpectralFrechet("logm", S, A),
         M.ExpmFrechet: M.ExpmFrechet(A, E.Differential(A)),
+        M.ExpmFrechet2: M.ExpmFrechet2(A, A, E.Differential(A)),
         M.LogmFrechet: M.LogmFrechet(A, E.Differential(A)),
         M.SolveSylvester: M.SolveSylvester(A, A, A),
         M.SolveContinuousLyapunov: M.SolveContinuousLyapunov(A, S),

@@ -46,6 +46,7 @@ def test_block_hessian_objective_and_products_match_jax(seed):
     assert_close(obj.hessp(flat, p, a["X"], a["Y"]), hess @ p, 1e-10, "Hessian-vector product")
     assert_close(d.hessian_function()(**a), hess, 1e-10, "hessian_function()")
     assert_close(d.hessian_function("W", "b")(**a), hess, 1e-10, "hessian_function(W, b)")
+    assert_close(d.hessian_function(["W", "b"])(**a), hess, 1e-10, "a list of variables")
     assert_close(d.hvp_function()(p, **a), hess @ p, 1e-10, "hvp_function()")
 
 
@@ -163,3 +164,53 @@ def test_block_hessian_over_a_subset_is_refused_plainly():
     d = derive(PALLETS, wrt=["W", "b"])
     with pytest.raises(NotSupportedError, match="some of the variables"):
         d.hessian_function("b", "W")
+
+
+# a REML-style criterion for a kiln-temperature survey: two variance components, the fixed
+# effects profiled out as a definition
+REML = """K: (n, n) spd
+X: (n, p)
+y: (n,)
+sg: () positive
+se: () positive
+V = sg * K + se * eye(n)
+A = X.T @ solve(V, X)
+beta = solve(A, X.T @ solve(V, y))
+r = y - X @ beta
+nll = (logdet(V) + logdet(A) + r @ solve(V, r)) / 2"""
+
+
+def test_reml_block_hessian_and_profiled_fixed_effects():
+    from checks import jax, jnp
+
+    d = derive(REML, wrt=["sg", "se"])
+    rng = np.random.default_rng(4)
+    n, p = 12, 2
+    a = rng.standard_normal((n, n))
+    K = a @ a.T / n + np.eye(n)
+    X, y = rng.standard_normal((n, p)), rng.standard_normal(n)
+
+    def f(t):  # the criterion in jax.numpy, by hand
+        V = t[0] * K + t[1] * jnp.eye(n)
+        A = X.T @ jnp.linalg.solve(V, X)
+        r = y - X @ jnp.linalg.solve(A, X.T @ jnp.linalg.solve(V, y))
+        return (
+            jnp.linalg.slogdet(V)[1] + jnp.linalg.slogdet(A)[1] + r @ jnp.linalg.solve(V, r)
+        ) / 2
+
+    want = np.asarray(jax.hessian(f)(jnp.array([0.7, 0.4])))  # reference library: JAX
+    assert_close(d.hessian_function()(K=K, X=X, y=y, sg=0.7, se=0.4), want, 1e-10, "REML Hessian")
+    # the profiled fixed effects are generalized least squares (Aitken, 1935): ordinary least
+    # squares on data whitened by the Cholesky factor of V (reference: NumPy's lstsq)
+    beta = d.values(K=K, X=X, y=y, sg=0.7, se=0.4)["beta"]
+    c = np.linalg.cholesky(0.7 * K + 0.4 * np.eye(n))
+    gls = np.linalg.lstsq(np.linalg.solve(c, X), np.linalg.solve(c, y), rcond=None)[0]
+    assert_close(beta, gls, 1e-10, "profiled fixed effects")
+    # standard errors from the inverse block Hessian, or a plain refusal where it is indefinite
+    if np.all(np.linalg.eigvalsh(want) > 0):
+        se = d.standard_errors(K=K, X=X, y=y, sg=0.7, se=0.4)
+        assert isinstance(se["sg"], float)
+        assert_close([se["sg"], se["se"]], np.sqrt(np.diag(np.linalg.inv(want))), 1e-8, "SEs")
+    else:
+        with pytest.raises(FormulaError, match="not positive definite"):
+            d.standard_errors(K=K, X=X, y=y, sg=0.7, se=0.4)

@@ -631,6 +631,8 @@ class Derivation:
         """hvp(V, **arrays): one variable as today (V shaped like it); with no variable named
         and several in the derivation, or several named, V and the result are packed vectors
         (the layout of `objective()`), cross blocks included."""
+        if len(vars_) == 1 and isinstance(vars_[0], (list, tuple)):
+            vars_ = tuple(vars_[0])
         if var is None and (len(vars_) > 1 or (not vars_ and len(self.variables) > 1)):
             from .fitting import packed_hvp_function
 
@@ -644,6 +646,8 @@ class Derivation:
         """h(**arrays): the dense Hessian over column-major vec X for one variable; with no
         variable named and several in the derivation, or several named, one matrix over the
         packed vector (the layout of `objective()`), cross blocks included."""
+        if len(vars_) == 1 and isinstance(vars_[0], (list, tuple)):
+            vars_ = tuple(vars_[0])
         if var is None and (len(vars_) > 1 or (not vars_ and len(self.variables) > 1)):
             from .fitting import packed_hessian_function
 

@@ -106,7 +106,8 @@ EXTRA_ENTRYWISE: dict[str, Entrywise] = {
         lambda x: np.heaviside(x, 0.5),
         "heaviside({}, 0.5)",
         r"H\left({}\right)",
-        "np.heaviside({}, 0.5)",
+        # exactly 0, 1/2 or 1, in any array library (np.heaviside has no array-API twin)
+        "(0.5 + 0.5 * np.sign({}))",
     ),
 }
 

@@ -439,7 +439,7 @@ def standard_errors(derivation, arrays: dict) -> dict:
     shapes = lay.shapes()
     for v, sl in lay.slices(shapes).items():
         out[v] = lay._from_free(v, se[sl], shapes[v])
-        if isinstance(out[v], np.ndarray) and out[v].ndim == 0:
+        if np.ndim(out[v]) == 0:
             out[v] = float(out[v])
     return out
 

@@ -198,6 +198,19 @@ class ExpmFrechet(Expr):
         return a.shape
 
 
+class ExpmFrechet2(Expr):
+    """The second Fréchet derivative of expm at A along E1 and E2; args (A, E1, E2)."""
+
+    __slots__ = ()
+
+    def _infer_shape(self):
+        a, e1, e2 = self.args
+        _need_square(a, "expm")
+        _same_square(a, e1, "the second derivative of expm")
+        _same_square(a, e2, "the second derivative of expm")
+        return a.shape
+
+
 class LogmFrechet(Expr):
     """The Fréchet derivative of the principal logm at a square A along E; args (A, E)."""
 
@@ -294,9 +307,8 @@ class SolveDiscreteLyapunov(Expr):
 
 NODES = (
     Eigvalsh, EigvalshJvp, EigvalshVjp, EigvalshVjpJvp, Cholesky, CholeskyJvp, CholeskyVjp,
-    TrilHalf, MatrixFunction,
-    SpectralFrechet, ExpmFrechet, LogmFrechet, SolveSylvester, SolveContinuousLyapunov,
-    SolveDiscreteLyapunov,
+    TrilHalf, MatrixFunction, SpectralFrechet, ExpmFrechet, ExpmFrechet2, LogmFrechet,
+    SolveSylvester, SolveContinuousLyapunov, SolveDiscreteLyapunov,
 )  # fmt: skip
 
 __all__ = [c.__name__ for c in NODES] + ["MATRIX_FUNCTIONS", "NODES"]

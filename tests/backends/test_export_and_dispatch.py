@@ -279,3 +279,40 @@ def test_matrix_equations_and_functions_are_refused_by_name(block):
     name = "solve_continuous_lyapunov" if "lyapunov" in block else "expm"
     with pytest.raises(NotImplementedError, match=f"{name} is not available for torch arrays"):
         d.gradient_function()(**{k: torch.asarray(v) for k, v in arrays.items()})
+
+
+MORE_NUMPY = [
+    ("Z: (n, k)\nW: (k, c)\nb: (c,)\nY: (n, c)\nL = Z @ W + b\nf = sum(logsumexp(L, axis=1)) - sum(Y * L)", "W b"),
+    ("X: (n, k)\nf = sum(softmax(X, axis=1) ** 2) + sum(log_softmax(X, axis=1))", "X"),
+    ("X: (n, k)\nf = sum(erf(X)) + sum(arctan(X)) + sum(maximum(X, 0))", "X"),
+    ("x: (n,) positive\nf = sum(gammaln(x))", "x"),
+    ("S: (n, n) spd\nA: (n, n)\nf = logdet(A @ S @ A.T + eye(n))", "S"),
+]  # fmt: skip
+
+
+@pytest.mark.parametrize("library", ["torch", "jax"])
+@pytest.mark.parametrize("block", [b for b, _ in MORE_NUMPY], ids=range(len(MORE_NUMPY)))
+def test_axis_reductions_special_functions_and_built_spd(block, library):
+    """Row-wise log-sum-exp and softmax, erf, gammaln (from the library's own special
+    functions), constants like pi and a matrix built to be spd (reference: NumPy's numbers)."""
+    convert = torch.asarray if library == "torch" else jnp.asarray
+    wrt = dict(MORE_NUMPY)[block]
+    d = derive(block, wrt=wrt)
+    rng = np.random.default_rng(0)
+    sizes = {"n": 4, "k": 3, "c": 2}
+    arrays = {}
+    for name, info in d.symbols.items():
+        if info.role in ("defined", "target"):
+            continue
+        shape = tuple(sizes[s] for s in info.shape)
+        a = rng.standard_normal(shape)
+        if "positive" in info.structure:
+            a = rng.uniform(0.5, 1.5, size=shape)
+        if "spd" in info.structure:
+            a = a @ a.T + 4 * np.eye(shape[0])
+        arrays[name] = a
+    want = d.value_and_gradient_function()(**arrays)
+    got = d.value_and_gradient_function()(**{k: convert(v) for k, v in arrays.items()})
+    flat = lambda t: [y for x in t for y in (flat(x) if isinstance(x, tuple) else [x])]  # noqa: E731
+    for g, w in zip(flat(got), flat(want), strict=True):
+        assert rel_err(np.asarray(g), w) <= 1e-12

@@ -69,3 +69,18 @@ def test_internal_errors_become_formula_errors(monkeypatch):
     d = derive(MEAN_ONLY, wrt="mu")
     with pytest.raises(NotSupportedError, match="stationary point"):
         d.stationary_point()
+
+
+@pytest.mark.parametrize(
+    "block, var, invert",
+    [
+        ("r: (n,)\nN: ()\ns2: () positive\nf = N * log(s2) + sum(r**2) / s2", "s2", False),
+        ("r: (n,)\nN: ()\nt: () positive\nf = -N * log(t) + t * sum(r**2)", "t", True),
+    ],
+)
+def test_scalar_variance_and_precision(sample, block, var, invert):
+    r = sample[:, 0] - sample[:, 0].mean()
+    d = derive(block, wrt=var)
+    got = d.stationary_point().function()(r=r, N=float(len(r)))
+    want = np.var(r)  # reference: NumPy, the 1/N variance
+    assert got == pytest.approx(1 / want if invert else want, rel=1e-12)

@@ -185,14 +185,63 @@ def _matrix_function(x, d):
     return M.LogmFrechet(a, da)
 
 
-@rule(M.SpectralFrechet, "the Daleckii–Krein form is linear in dS")
+def _second_frechet(name: str, a: E.Expr, x: E.Expr, e: E.Expr, da: E.Expr, lin) -> E.Expr:
+    """d L_f(A, E) along dA for fixed E, x = L_f(A, E) itself, lin(Y) = L_f(A, Y):
+    expm: L²(A; dA, E); sqrtm: from X L + L X = E, dL = L_f(A, -(dX L + L dX)) written as a
+    Sylvester solve; logm: from L_exp(X, L) = E with X = logm(A), dL = L_f(A, -L²_exp(X; dX, L))."""
+    if name == "expm":
+        return M.ExpmFrechet2(a, da, e)
+    f_a = M.MatrixFunction(name, a)
+    dx = lin(da)
+    if name == "sqrtm":
+        return M.SolveSylvester(f_a, f_a, E.neg(E.add(E.matmul(dx, x), E.matmul(x, dx))))
+    return lin(E.neg(M.ExpmFrechet2(f_a, dx, x)))
+
+
+def _frechet_rule(x, d, name, a, e, build):
+    out = []
+    de = d(e)
+    if not E.is_zero(de):
+        out.append(build(a, de))
+    da = d(a)
+    if not E.is_zero(da):
+        out.append(_second_frechet(name, a, x, e, da, lambda y: build(a, y)))
+    return E.add(*out) if out else E.zero_like(x.shape)
+
+
+@rule(M.SpectralFrechet, "second Fréchet derivative (Higham 2008, §3.5)")
 def _spectral_frechet(x, d):
-    return _linear_in_last(x, d, x.args[0], M.SpectralFrechet)
+    name, s, e = x.args
+    return _frechet_rule(x, d, name, s, e, lambda a, y: M.SpectralFrechet(name, a, y))
 
 
-@rule(M.ExpmFrechet, "the Fréchet derivative is linear in dA")
+@rule(M.ExpmFrechet, "second Fréchet derivative of expm (Higham 2008, §3.5)")
 def _expm_frechet(x, d):
-    return _linear_in_last(x, d, "expm", M.ExpmFrechet)
+    a, e = x.args
+    return _frechet_rule(x, d, "expm", a, e, M.ExpmFrechet)
+
+
+@rule(M.ExpmFrechet2, "the second Fréchet derivative is linear in each direction")
+def _expm_frechet2(x, d):
+    a, e1, e2 = x.args
+    if not E.is_zero(d(a)):
+        _second_order("expm (third derivatives)")
+    out = []
+    for k, arg in ((1, e1), (2, e2)):
+        da = d(arg)
+        if not E.is_zero(da):
+            out.append(M.ExpmFrechet2(a, da, e2) if k == 1 else M.ExpmFrechet2(a, e1, da))
+    return E.add(*out) if out else E.zero_like(x.shape)
+
+
+@adjoint_rule(M.ExpmFrechet2)
+def _adj_expm_frechet2(node, g):
+    # every term of the series is a product with E1 and E2 in two places: L²(A; E1, ·)* =
+    # L²(Aᵀ; E1ᵀ, ·)
+    a, e1, e2 = node.args
+    if a.has_differential or e1.has_differential:
+        _nonlinear(node)
+    return [(e2, M.ExpmFrechet2(E.transpose(a), E.transpose(e1), g))]
 
 
 def _identity_multiple(g: E.Expr):
@@ -245,9 +294,10 @@ def _adj_expm_frechet(node, g):
     return [(e, M.ExpmFrechet(E.transpose(a), g))]
 
 
-@rule(M.LogmFrechet, "the Fréchet derivative is linear in dA")
+@rule(M.LogmFrechet, "second Fréchet derivative of logm (Higham 2008, §3.5)")
 def _logm_frechet(x, d):
-    return _linear_in_last(x, d, "logm", M.LogmFrechet)
+    a, e = x.args
+    return _frechet_rule(x, d, "logm", a, e, M.LogmFrechet)
 
 
 @adjoint_rule(M.LogmFrechet)

@@ -77,6 +77,10 @@ def _terms(e: E.Expr):
 
 def _split(term: E.Expr, x: E.Symbol):
     """term = s * A X B -> (s, A factors, B factors); None if X is not a plain chain factor."""
+    if x.is_scalar and type(term) is E.Mul:  # c * x with a scalar x: every factor is scalar
+        rest = [f for f in term.args if f != x]
+        if len(rest) == len(term.args) - 1 and not any(x.name in f.symbols for f in rest):
+            return E.mul(*rest), (), ()
     scalars: list = []
     core = term
     if type(term) is E.Mul:
@@ -198,6 +202,18 @@ def stationary_point(derivation, var: str) -> StationaryPoint:
         inverse = _through_inverse(g, x, derivation)
         if inverse is not None:
             return inverse
+    if x.is_scalar:
+        # a variance or a precision: x g or x² g is affine in x (x ≠ 0 at a stationary point of
+        # a function that is not defined at 0)
+        for k in (1, 2):
+            h = simplify(expand(E.mul(E.power(x, E.Const(k)), g)))
+            if var in h.symbols and _is_affine(h, var):
+                try:
+                    point = _solve_affine(h, x)
+                except NotSupportedError:
+                    continue
+                how = f"{var}{'²' if k == 2 else ''} times the gradient is affine in {var}"
+                return StationaryPoint(var, point, how, derivation)
     raise NotSupportedError(
         f"not supported yet: a closed form for the stationary point in {var} (the gradient is "
         "not affine in it); use the gradient with an optimizer"

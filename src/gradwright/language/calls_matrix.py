@@ -137,3 +137,9 @@ def _frechet(name: str):
 
 for _name in M.MATRIX_FUNCTIONS:
     register(f"{_name}_frechet", 2, 2)(_frechet(_name))
+
+
+@register("expm_frechet2", 3, 3)
+def _expm_frechet2(reader, node, args, keywords):
+    _square(reader, node, args[0], "expm_frechet2")
+    return M.ExpmFrechet2(*args)

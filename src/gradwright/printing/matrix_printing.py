@@ -29,6 +29,7 @@ _TEXT_NAMES = {
     M.CholeskyJvp: "cholesky_jvp",
     M.CholeskyVjp: "cholesky_vjp",
     M.ExpmFrechet: "expm_frechet",
+    M.ExpmFrechet2: "expm_frechet2",
     M.LogmFrechet: "logm_frechet",
     M.SolveSylvester: "solve_sylvester",
     M.SolveContinuousLyapunov: "solve_continuous_lyapunov",
@@ -139,6 +140,11 @@ def _latex_expm_frechet(self, e):
     return rf"L_{{\exp}}\left({self._print(a)}, {self._print(d)}\right)"
 
 
+def _latex_expm_frechet2(self, e):
+    a, d1, d2 = (self._print(x) for x in e.args)
+    return rf"L^{{(2)}}_{{\exp}}\left({a}; {d1}, {d2}\right)"
+
+
 def _latex_logm_frechet(self, e):
     a, d = e.args
     return rf"L_{{\log}}\left({self._print(a)}, {self._print(d)}\right)"
@@ -177,6 +183,7 @@ for _cls, _fn in {
     M.MatrixFunction: _latex_matrix_function,
     M.SpectralFrechet: _latex_spectral_frechet,
     M.ExpmFrechet: _latex_expm_frechet,
+    M.ExpmFrechet2: _latex_expm_frechet2,
     M.LogmFrechet: _latex_logm_frechet,
     M.SolveSylvester: _latex_sylvester,
     M.SolveContinuousLyapunov: _latex_lyapunov,
@@ -224,6 +231,7 @@ for _cls, _method in {
     M.MatrixFunction: _code_matrix_function,
     M.SpectralFrechet: _code_helper("_gw_spectral_frechet", label=True),
     M.ExpmFrechet: _code_helper("_gw_expm_frechet"),
+    M.ExpmFrechet2: _code_helper("_gw_expm_frechet2"),
     M.LogmFrechet: _code_helper("_gw_logm_frechet"),
     M.SolveSylvester: _code_helper("_gw_solve_sylvester"),
     M.SolveContinuousLyapunov: _code_helper("_gw_solve_continuous_lyapunov"),

@@ -180,6 +180,16 @@ def _gw_expm_frechet(a, e):
 
     return expm_frechet(a, e, compute_expm=False)
 """,
+    "_gw_expm_frechet2": """
+def _gw_expm_frechet2(a, e1, e2):
+    \"\"\"The second Frechet derivative of expm at A along E1, E2: the upper-right block of expm
+    of the 4 x 4 block upper-triangular matrix (Higham, Functions of Matrices, 2008, §3.5).\"\"\"
+    from scipy.linalg import expm
+
+    n, z = a.shape[0], np.zeros_like(a)
+    big = np.block([[a, e1, e2, z], [z, a, z, e2], [z, z, a, e1], [z, z, z, a]])
+    return expm(big)[:n, 3 * n :]
+""",
     "_gw_logm_frechet": """
 def _gw_logm_frechet(a, e):
     \"\"\"The Frechet derivative of the principal logm at A along E: the upper-right block of

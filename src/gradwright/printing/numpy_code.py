@@ -273,7 +273,8 @@ class NumpyPrinter(NumpyAxisMixin, TextPrinter):
             right = E.matmul(*fs[k:]) if len(fs) - k > 1 else fs[k]
             lt, rt = self._print(left), self._print(right)
             if E.is_vector_shape(left.shape):
-                return f"{self.wrap(lt)} @ {self.wrap(rt)}"
+                # parenthesized: the parent sees a trace (an atom), not a product
+                return f"({self.wrap(lt)} @ {self.wrap(rt)})"
             return f'np.einsum("ij,ji->", {lt}, {rt})'
         return f"np.trace({self._print(a)})"
 
@@ -282,7 +283,8 @@ class NumpyPrinter(NumpyAxisMixin, TextPrinter):
         if _is_square(a) and self.gen.temps.get(a) is None and not E.is_scalar_shape(a.shape):
             x = self._print(a.args[0])
             if not E.is_matrix_shape(a.shape):
-                return f"{self.wrap(x)} @ {self.wrap(x)}"  # one BLAS dot, no temporary
+                # one BLAS dot, no temporary; parenthesized, as the parent sees a sum (an atom)
+                return f"({self.wrap(x)} @ {self.wrap(x)})"
             return f'np.einsum("ij,ij->", {x}, {x})'  # no temporary for the squares
         if (
             type(a) is E.Mul
@@ -294,7 +296,7 @@ class NumpyPrinter(NumpyAxisMixin, TextPrinter):
             if not any(type(f) is E.Power and type(f.args[1]) is E.Const and f.args[1].value < 0
                        for f in (x, y)):  # fmt: skip
                 if not E.is_matrix_shape(a.shape):
-                    return f"{self.wrap(self._print(x))} @ {self.wrap(self._print(y))}"
+                    return f"({self.wrap(self._print(x))} @ {self.wrap(self._print(y))})"
                 return f'np.einsum("ij,ij->", {self._print(x)}, {self._print(y)})'
         return f"np.sum({self._print(a)})"
 

@@ -239,11 +239,29 @@ class _GwXp:
         if name.startswith("__"):
             raise AttributeError(name)
         if name in _GW_STANDARD and hasattr(self.ns, name):
-            return getattr(self.ns, name)
-        for place in (self.native, getattr(self.native, "linalg", None), self._scipy_linalg()):
-            if place is not None and hasattr(place, name):
-                return getattr(place, name)
-        self.unavailable(name)
+            fn = getattr(self.ns, name)
+
+            def call(*args, **kwargs):
+                # a Python number (sqrt(pi), a constant) as an array: PyTorch takes no floats
+                args = [self._arr(a) if isinstance(a, (int, float)) else a for a in args]
+                return fn(*args, **kwargs)
+
+            return call
+        places = (self.native, getattr(self.native, "linalg", None), self._scipy_linalg())
+        found = [getattr(p, name) for p in places if p is not None and hasattr(p, name)]
+        if not found:
+            self.unavailable(name)
+        fn = found[0]
+        if not callable(fn):
+            return fn  # a constant (pi, inf)
+
+        def native(*args, **kwargs):
+            # a float argument as an array (heaviside(x, 0.5)); integers stay, they are orders,
+            # counts and axes there
+            args = [self._arr(a) if type(a) is float else a for a in args]
+            return fn(*args, **kwargs)
+
+        return native
 
     def _scipy_linalg(self):
         """Where the library keeps SciPy's linear algebra (solve_sylvester, expm, ...)."""
@@ -550,23 +568,33 @@ class _GwXp:
             )
         return value
 
-    def gw_cho(self, a, label):
+    def gw_cho(self, a, label, declared=True):
         """(lower Cholesky factor, True, a): the factor's diagonal is entry [0]'s diagonal."""
-        if self.concrete(a):
+        if self.concrete(a) and math.prod(a.shape):
             # the factorization reads one triangle only: an unsymmetric input would give a
-            # silently wrong answer; the tolerance is relative to the largest entry (common
-            # practice)
+            # silently wrong answer; the tolerance is relative to the largest entry and to the
+            # precision (common practice)
             ns = self.ns
-            scale = max(1.0, float(ns.max(ns.abs(a)))) if math.prod(a.shape) else 1.0
-            if math.prod(a.shape) and float(ns.max(ns.abs(a - a.T))) > 1e-8 * scale:
-                raise ValueError(f"{label} is declared spd but is not symmetric")
+            eps = float(ns.finfo(a.dtype).eps)
+            tol = max(1e-8, 1e3 * eps) * max(1.0, float(ns.max(ns.abs(a))))
+            if float(ns.max(ns.abs(a - a.T))) > tol:
+                if declared:
+                    raise ValueError(f"{label} is declared spd but is not symmetric")
+                raise ValueError(
+                    f"{label} is not symmetric, but it is built to be spd from the matrices "
+                    "declared spd: check that they are symmetric"
+                )
+        why = "it is declared spd" if declared else "it is built to be spd from spd matrices"
         try:
             low = self.cholesky(a)
         except Exception as err:
-            raise ValueError(f"{label} is not positive definite (it is declared spd)") from err
+            raise ValueError(f"{label} is not positive definite ({why})") from err
         if self.concrete(low) and not bool(self.ns.all(self.ns.isfinite(low))):
-            raise ValueError(f"{label} is not positive definite (it is declared spd)")
+            raise ValueError(f"{label} is not positive definite ({why})")
         return (low, True, a)
+
+    def gw_tril_half(self, x):
+        return self._phi(x)
 
     def gw_adjugate(self, a):
         """adj(A) = det(A) inv(A); where A is singular only NumPy's SVD path defines it here."""
@@ -670,3 +698,66 @@ class _GwXp:
             return self.einsum("ikjl,kl->ij", self.reshape(g, (rows, p, cols, q)), other)
         m, n = other.shape
         return self.einsum("ikjl,ij->kl", self.reshape(g, (m, rows, n, cols)), other)
+
+    # --- reductions over an axis and special functions (language/calls_reductions.py, ...) ---
+    # the same max-shifted formulas as the NumPy helpers in printing/axis_printing.py
+
+    def gw_logsumexp_axis(self, a, axis, keepdims):
+        ns = self.ns
+        m = ns.max(a, axis=axis, keepdims=True)
+        m = ns.where(ns.isfinite(m), m, ns.zeros_like(m))
+        out = m + ns.log(ns.sum(ns.exp(a - m), axis=axis, keepdims=True))
+        if keepdims:
+            return out
+        return ns.reshape(out, ()) if axis is None else ns.squeeze(out, axis=axis)
+
+    def gw_softmax_axis(self, a, axis):
+        ns = self.ns
+        z = ns.exp(a - ns.max(a, axis=axis, keepdims=True))
+        return z / ns.sum(z, axis=axis, keepdims=True)
+
+    def gw_log_softmax_axis(self, a, axis):
+        ns = self.ns
+        shifted = a - ns.max(a, axis=axis, keepdims=True)
+        return shifted - ns.log(ns.sum(ns.exp(shifted), axis=axis, keepdims=True))
+
+    def gw_tie_weights(self, a, axis, op):
+        ns = self.ns
+        best = (ns.max if op == "max" else ns.min)(a, axis=axis, keepdims=True)
+        hits = ns.astype(a == best, a.dtype)
+        return hits / ns.sum(hits, axis=axis, keepdims=True)
+
+    def _special(self, name, x, *order):
+        """scipy.special's function in the arguments' library (torch.special, jax.scipy)."""
+        if self.library == "numpy":
+            import scipy.special as place
+        elif self.library == "torch":
+            import torch.special as place
+        elif self.library == "jax":
+            import jax.scipy.special as place
+        elif self.library == "cupy":
+            import cupyx.scipy.special as place
+        else:
+            self.unavailable(name)
+        fn = getattr(place, name, None)
+        if fn is None:
+            self.unavailable(name)
+        return fn(*order, x)
+
+    def gw_erf(self, x):
+        return self._special("erf", x)
+
+    def gw_gammaln(self, x):
+        return self._special("gammaln", x)
+
+    def gw_digamma(self, x):
+        return self._special("digamma", x)
+
+    def gw_trigamma(self, x):
+        return self._special("polygamma", x, 1)
+
+    def gw_tetragamma(self, x):
+        return self._special("polygamma", x, 2)
+
+    def gw_pentagamma(self, x):
+        return self._special("polygamma", x, 3)
