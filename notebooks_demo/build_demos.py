@@ -501,12 +501,119 @@ dict(zip(classes, fitted.mean(axis=0).round(3)))""",
     ),
 ]
 
+ANTENNA = [
+    (
+        "md",
+        """# A greenhouse antenna array: channel estimation and a Wiener combiner
+
+Eight antennas on a greenhouse roof receive complex baseband snapshots from four soil-sensor
+transmitters buried between the rows. Each transmitter sends known pilot symbols; from the
+snapshots `Y` we estimate the complex channel `H` by least squares, then build a Wiener combiner
+that recovers one sensor's symbols from the Hermitian covariance of the snapshots.
+
+gradwright derives the Wirtinger gradients. For a real loss of a complex variable `Z` it reports
+`G = ∂f/∂Re Z + i ∂f/∂Im Z = 2 ∂f/∂Z̄`, so that `df = Re tr(Gᴴ dZ)` and `Z ← Z − step·G`
+descends.""",
+    ),
+    (
+        "code",
+        """import numpy as np
+from scipy import optimize
+
+%load_ext gradwright""",
+    ),
+    (
+        "code",
+        """# Invented data: 8 antennas, 4 transmitters, 60 pilot snapshots (QPSK pilots).
+rng = np.random.default_rng(4417)
+n_antennas, n_sensors, n_snapshots = 8, 4, 60
+qpsk = np.array([1 + 1j, 1 - 1j, -1 + 1j, -1 - 1j]) / np.sqrt(2)
+X = rng.choice(qpsk, size=(n_sensors, n_snapshots))
+H_true = (rng.standard_normal((n_antennas, n_sensors))
+          + 1j * rng.standard_normal((n_antennas, n_sensors))) / np.sqrt(2)
+noise = 0.1 * (rng.standard_normal((n_antennas, n_snapshots))
+               + 1j * rng.standard_normal((n_antennas, n_snapshots))) / np.sqrt(2)
+Y = H_true @ X + noise
+Y.shape, X.shape""",
+    ),
+    ("md", "The least-squares loss of the channel, with `H` as the (complex) variable:"),
+    (
+        "code",
+        """%%derive H
+Y: (a, k) complex     # received snapshots, antennas x snapshots
+H: (a, t) complex     # channel, antennas x transmitters
+X: (t, k) complex     # known pilot symbols
+loss = norm(Y - H @ X)**2""",
+    ),
+    (
+        "md",
+        """The derivation keeps `dH` and `conj(dH)` apart, then uses that the loss is real to read off
+the gradient. The check panel moves `H` along real and imaginary directions (the complex step
+needs a real function of real inputs, so it is not offered here). From code:""",
+    ),
+    ("code", """print(loss_check.run().summary())"""),
+    (
+        "md",
+        """### The estimate: closed form and optimizer agree
+
+The gradient is affine in `H` alone, so "gradient = 0" has a closed form; an optimizer over the
+real and imaginary parts (`loss_pack` stacks them) finds the same channel.""",
+    ),
+    (
+        "code",
+        """point = loss_derivation.stationary_point("H")
+print(point.text())
+H_closed = point.function()(Y=Y, X=X)
+result = optimize.minimize(
+    lambda flat: loss_objective(flat, Y=Y, X=X),
+    loss_pack(H=np.zeros((n_antennas, n_sensors), complex)),
+    jac=True,
+    method="L-BFGS-B",
+)
+H_fit = loss_unpack(result.x)
+print("optimizer vs closed form:", np.max(np.abs(H_fit - H_closed)))
+print("closed form vs truth:    ", np.max(np.abs(H_closed - H_true)))""",
+    ),
+    (
+        "md",
+        """### A Wiener combiner for sensor 1
+
+The combiner `w` estimates sensor 1's symbol `s` from a snapshot `y` as `wᴴ y`. Its mean square
+error uses the snapshots' covariance `R` (Hermitian positive definite) and their correlation `p`
+with the pilots; `w.conj() @ R @ w` is real because `R` is Hermitian, and gradwright proves it.""",
+    ),
+    (
+        "code",
+        """R = Y @ Y.conj().T / n_snapshots
+p = Y @ X[0].conj() / n_snapshots
+s2 = float(np.mean(np.abs(X[0]) ** 2))""",
+    ),
+    (
+        "code",
+        """%%derive w --no-check
+R: (a, a) hpd       # covariance of the snapshots
+p: (a,) complex     # correlation with sensor 1's pilots
+w: (a,) complex     # combiner weights
+s2: ()              # power of the pilots
+mse = s2 - 2 * real(vdot(w, p)) + w.conj() @ R @ w""",
+    ),
+    (
+        "code",
+        """wiener = mse_derivation.stationary_point("w")
+print(wiener.text())
+w_star = wiener.function()(R=R, p=p)
+print("gradient at the solution:", np.max(np.abs(grad_mse(R=R, p=p, w=w_star, s2=s2))))
+print("symbol error rate:", np.mean(np.sign((w_star.conj() @ Y).real) != np.sign(X[0].real)))""",
+    ),
+]
+
 DEMOS = {
     "soil_moisture_covariance.ipynb": SOIL,
     "store_week_demand.ipynb": DEMAND,
     "bridge_strain_gls.ipynb": BRIDGE,
     "robot_arm_jacobians.ipynb": ROBOT,
     "ferry_ticket_choice.ipynb": FERRY,
+    "greenhouse_antenna_array.ipynb": ANTENNA,
 }
 
 

@@ -523,6 +523,51 @@ def jax_reference(block_text: str, sizes: dict):
     return ref
 
 
+# --- complex variables (Wirtinger calculus) ------------------------------------------------------
+# gradwright's gradient of a real f of complex Z is G = ∂f/∂Re Z + i ∂f/∂Im Z = 2 ∂f/∂conj(Z).
+# JAX's grad of a real function of a complex input returns ∂f/∂Re Z - i ∂f/∂Im Z = conj(G)
+# (JAX documentation, autodiff cookbook, "Complex numbers and differentiation"; checked here
+# on f(z) = |z|², where grad gives 2 conj(z), in test_jax_convention_is_the_conjugate).
+
+
+def jax_complex_gradient(fn, arrays: dict, var: str) -> np.ndarray:
+    """G = conj(jax.grad) for a real-valued fn(**arrays) of the complex array arrays[var]."""
+    others = {k: jnp.asarray(v) for k, v in arrays.items() if k != var}
+    g = jax.grad(lambda z: fn(**{**others, var: z}))(jnp.asarray(arrays[var], dtype=complex))
+    return np.conj(np.asarray(g))  # reference library: JAX, converted to our convention
+
+
+def complex_directions(shape, rng, hermitian=False) -> list:
+    """One real, one imaginary and one general complex direction (Hermitian if asked)."""
+    out = []
+    for make in (
+        lambda: rng.standard_normal(shape) + 0j,
+        lambda: 1j * rng.standard_normal(shape),
+        lambda: rng.standard_normal(shape) + 1j * rng.standard_normal(shape),
+    ):
+        e = make()
+        if hermitian:
+            e = (e + np.conj(e).T) / 2
+        out.append(e)
+    return out
+
+
+def complex_difference_check(f, arrays: dict, var: str, grad, *, h=1e-6, seed=0, hermitian=False):
+    """Central differences of a real f along real and imaginary directions E agree with
+    Re <G, E> = Re sum(conj(G) * E), the directional derivative our convention promises."""
+    rng = np.random.default_rng(seed)
+    x = np.asarray(arrays[var])
+    directions = complex_directions(x.shape, rng, hermitian)
+    if np.isrealobj(x):  # a real variable of a complex block: real directions only
+        directions = [np.real(directions[0])]
+    for e in directions:
+        up = f(**{**arrays, var: x + h * e})
+        down = f(**{**arrays, var: x - h * e})
+        numeric = (up - down) / (2 * h)
+        analytic = float(np.real(np.sum(np.conj(grad) * e)))
+        assert abs(numeric - analytic) <= 1e-5 * max(1.0, abs(analytic)), (numeric, analytic)
+
+
 # --- packed parameter vectors (fitting) ---------------------------------------------------------
 
 

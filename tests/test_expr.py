@@ -62,6 +62,12 @@ EXAMPLES = {
     E.TieWeights: E.TieWeights("max", B, 0),
     E.AxisSoftmax: E.AxisSoftmax("log_softmax", B, 1),
     E.Extremum: E.Extremum("maximum", B, s),
+    # complex arithmetic (gradwright.complex_nodes)
+    E.Conj: E.Conj(E.Symbol("Z", (n, k), frozenset({"complex"}))),
+    E.Real: E.Real(E.Symbol("Z", (n, k), frozenset({"complex"}))),
+    E.Imag: E.Imag(E.Symbol("Z", (n, k), frozenset({"complex"}))),
+    E.Abs: E.Abs(B),
+    E.ImagUnit: E.ImagUnit(),
 }
 
 # the spectral, factorization and matrix-equation family (gradwright.matrix_functions)
@@ -95,6 +101,8 @@ NOT_LINEAR = {
     E.LogDet, E.Inverse, E.Norm, E.LogSumExp, E.Softmax, E.MatPow, E.Named, E.D,
     M.Eigvalsh, M.Cholesky, M.MatrixFunction,
     E.AxisReduce, E.TieWeights, E.AxisSoftmax, E.Extremum,
+    # conj(dZ) is a leaf of its own in the Wirtinger read-off; the others expand by their rules
+    E.Conj, E.Real, E.Imag, E.Abs, E.ImagUnit,
 }  # fmt: skip
 NOT_LINEAR |= {E.SizeOf, E.Pi}  # numbers of the language: constants
 #: classes the code generator never prints (pending differentials exist only in displayed steps)

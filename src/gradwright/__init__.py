@@ -108,6 +108,10 @@ def derive(
                 raise FormulaError(f"sizes[{k!r}] must be a positive integer, got {v!r}")
             checked[k] = int(v)
         sizes = checked
+    from .complex_derivation import ComplexDerivation, is_complex_block
+
+    if is_complex_block(block):
+        return ComplexDerivation(block, tuple(seen), sizes)
     return Derivation(block, tuple(seen), sizes)
 
 

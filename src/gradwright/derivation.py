@@ -378,7 +378,9 @@ class Derivation:
     def supports_complex_step(self) -> bool:
         for node in E.walk(self.expr):
             t = type(node)
-            if t in (E.LogDet, E.Norm) or (t is E.Func and node.name == "softplus"):
+            # |x + ih| and sign(x + ih) are not analytic: the complex step would read 0
+            nonanalytic = ("softplus", "abs", "sign")
+            if t in (E.LogDet, E.Norm, E.Abs) or (t is E.Func and node.name in nonanalytic):
                 return False
             if t in (E.Solve, E.Inverse) and known_spd(node.args[0]):  # Cholesky: not analytic
                 return False

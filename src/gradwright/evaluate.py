@@ -228,6 +228,21 @@ class _Evaluator(AxisEvaluator):
         m, n = B.shape
         return np.einsum("ikjl,ij->kl", G.reshape(m, p, n, q), B)
 
+    def _Conj(self, e):
+        return np.conj(self.ev(e.args[0]))
+
+    def _Real(self, e):
+        return np.real(self.ev(e.args[0]))
+
+    def _Imag(self, e):
+        return np.imag(self.ev(e.args[0]))
+
+    def _Abs(self, e):
+        return np.abs(self.ev(e.args[0]))
+
+    def _ImagUnit(self, e):
+        return np.array([[1j]])
+
     def _SizeOf(self, e):
         return np.array([[float(self.size(e.dim))]])
 

@@ -1372,6 +1372,7 @@ def expanded_size(e: Expr, limit: int) -> int:
 
 
 # node families in their own modules; imported last because they build on the classes above
+from .complex_nodes import COMPLEX_NODE_CLASSES, Abs, Conj, Imag, ImagUnit, Real  # noqa: E402, F401
 from .matrix_functions import NODES as _MATRIX_NODES  # noqa: E402
 
 NODE_CLASSES = NODE_CLASSES + _MATRIX_NODES
@@ -1381,3 +1382,5 @@ NODE_CLASSES = NODE_CLASSES + _MATRIX_NODES
 from .expr_axis import AXIS_NODES, AxisReduce, AxisSoftmax, Extremum, TieWeights  # noqa: E402, F401
 
 NODE_CLASSES = NODE_CLASSES + AXIS_NODES
+
+NODE_CLASSES = NODE_CLASSES + COMPLEX_NODE_CLASSES

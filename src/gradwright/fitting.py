@@ -25,6 +25,10 @@ def _prod(values) -> int:
 
 def _kind(sym: E.Symbol) -> str:
     words = sym.structure
+    if "complex" in words:
+        # real parts then imaginary parts, column-major: the gradient G = ∂f/∂Re + i ∂f/∂Im
+        # packs to the real gradient over those entries (docs/complex.md)
+        return "complex"
     if not E.is_matrix_shape(sym.shape):
         return "full"
     if "orthogonal" in words:
@@ -152,6 +156,8 @@ class Layout:
             return shape[0] * (shape[0] + 1) // 2
         if kind == "diagonal":
             return shape[0]
+        if kind == "complex":
+            return 2 * _prod(shape)
         return _prod(shape)
 
     def slices(self, shapes: dict | None = None) -> dict:
@@ -172,6 +178,7 @@ class Layout:
             "symmetric": "lower triangle, column by column",
             "diagonal": "diagonal",
             "orthogonal": "not packable",
+            "complex": "column-major real parts, then imaginary parts",
         }
         if shapes is None:
             try:
@@ -195,6 +202,9 @@ class Layout:
             return value[_lower_index(value.shape[0])]
         if kind == "diagonal":
             return np.diagonal(value).copy()
+        if kind == "complex":
+            flat = np.ravel(value, order="F")
+            return np.concatenate([np.real(flat), np.imag(flat)])
         return np.ravel(value, order="F")
 
     def _from_free(self, var: str, piece: np.ndarray, shape: tuple):
@@ -209,13 +219,18 @@ class Layout:
             if kind == "symmetric":
                 out[cols, rows] = piece
             return out
+        if kind == "complex":
+            half = piece.size // 2
+            piece = piece[:half] + 1j * piece[half:]
         out = piece.reshape(shape, order="F")
         return out[()] if out.ndim == 0 else out
 
     def _cotangent_to_free(self, var: str, g) -> np.ndarray:
         """The adjoint of `_from_free`: a gradient shaped like the variable -> free entries."""
-        g = np.asarray(g, dtype=float)
         kind = self.kinds[var]
+        if kind == "complex":
+            return self._to_free(var, np.asarray(g, dtype=complex))
+        g = np.asarray(g, dtype=float)
         if kind == "symmetric":
             full = g + g.T
             full[np.diag_indices(g.shape[0])] /= 2
@@ -245,7 +260,7 @@ class Layout:
             )
         parts = []
         for v in self.variables:
-            value = np.asarray(arrays[v], dtype=float)
+            value = np.asarray(arrays[v], dtype=complex if self.kinds[v] == "complex" else float)
             if value.ndim != len(self.symbolic[v]):
                 raise ValueError(
                     f"{v} has {value.ndim} axes; the block declares shape {self.symbolic[v]}"

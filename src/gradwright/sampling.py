@@ -27,6 +27,8 @@ def sample_symbol(sym: E.Symbol, sizes: dict, rng: np.random.Generator, positive
     r, c = (_size(d, sizes) for d in sym.shape)
     words = sym.structure
     n = r
+    if "complex" in words:
+        return _sample_complex(sym, r, c, rng)
     if "spd" in words:
         a = rng.standard_normal((n, n))
         out = a @ a.T / n + np.eye(n)
@@ -61,6 +63,20 @@ def sample_symbol(sym: E.Symbol, sizes: dict, rng: np.random.Generator, positive
     if sym.shape[1] is None or sym.shape[0] is None:
         return out.reshape(-1)
     return out
+
+
+def _sample_complex(sym: E.Symbol, r: int, c: int, rng: np.random.Generator):
+    """A complex array: hermitian, hpd (AAᴴ/n + I) or general, unit-variance entries."""
+    a = (rng.standard_normal((r, c)) + 1j * rng.standard_normal((r, c))) / np.sqrt(2)
+    if "hpd" in sym.structure:
+        a = a @ a.conj().T / r + np.eye(r)
+    elif "hermitian" in sym.structure:
+        a = (a + a.conj().T) / 2
+    if sym.shape[0] is None and sym.shape[1] is None:
+        return complex(a.reshape(()))
+    if sym.shape[1] is None or sym.shape[0] is None:
+        return a.reshape(-1)
+    return a
 
 
 def needs_positive(e: E.Expr) -> set[str]:

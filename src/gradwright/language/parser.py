@@ -27,8 +27,15 @@ from .subscripts import subscript
 
 STRUCTURE_WORDS = (
     "symmetric", "spd", "diagonal", "positive", "orthogonal", "square", "invertible", "lower",
+    "complex", "hermitian", "hpd",
 )  # fmt: skip
-_SQUARE_WORDS = {"symmetric", "spd", "diagonal", "orthogonal", "square", "invertible", "lower"}
+_SQUARE_WORDS = {
+    "symmetric", "spd", "diagonal", "orthogonal", "square", "invertible", "lower", "hermitian",
+    "hpd",
+}  # fmt: skip
+_COMPLEX_FUNCTIONS = ("conj", "real", "imag", "vdot")
+#: real structure that a complex symbol cannot have (yet)
+_REAL_ONLY_WORDS = ("symmetric", "spd", "diagonal", "positive", "orthogonal", "lower")
 
 #: bounds on the work one block may ask for (documented in docs/limits.md)
 LIMITS = {
@@ -51,7 +58,8 @@ FUNCTIONS = {
     "eye": (1, 1), "ones": (1, 2),
     "zeros": (1, 2), "outer": (2, 2), "mpow": (2, 2), "commutation": (2, 2),
     # sum, mean, max, min, norm, logsumexp, softmax, log_softmax: calls_reductions.py
-    **{f: (1, 1) for f in E.ELEMENTWISE if f not in SPELLED_APART},
+    # abs: calls_complex.py (the modulus for complex arguments, the entrywise abs otherwise)
+    **{f: (1, 1) for f in E.ELEMENTWISE if f not in SPELLED_APART and f != "abs"},
 }  # fmt: skip
 
 # the families of functions in `calls_*.py` modules register themselves in CALLS
@@ -234,6 +242,11 @@ class _Reader:
         self.source_lines: list[str] = []
         self.base = 1
         self.power_cache: dict = {}
+
+    @property
+    def has_complex_symbols(self) -> bool:
+        """Complex literals like 2j are read only in blocks that declare a complex symbol."""
+        return any("complex" in s.structure for s in self.block.declarations.values())
 
     # --- errors ------------------------------------------------------------------------------
 
@@ -542,6 +555,20 @@ class _Reader:
             )
         if "spd" in words:
             words |= {"symmetric", "invertible", "square"}
+        if words & {"complex", "hermitian", "hpd"}:
+            clash = [w for w in _REAL_ONLY_WORDS if w in words]
+            if clash:
+                self.fail(
+                    f"not supported yet: a complex symbol that is also {clash[0]} (declare "
+                    f"{name} complex, hermitian or hpd alone)",
+                    lineno,
+                    col,
+                    len(name),
+                    NotSupportedError,
+                )
+            words |= {"complex"}
+        if "hpd" in words:
+            words |= {"hermitian", "invertible", "square"}
         if "orthogonal" in words:
             words |= {"invertible", "square"}
         for d in dims:
@@ -835,6 +862,15 @@ class _Reader:
             return self.name(node)
         if isinstance(node, ast.Constant):
             v = node.value
+            if (
+                isinstance(v, complex)
+                and v.real == 0
+                and v.imag == int(v.imag)
+                and self.has_complex_symbols
+            ):
+                from .calls_complex import imaginary_literal
+
+                return imaginary_literal(int(v.imag))
             if isinstance(v, bool) or not isinstance(v, (int, float)):
                 what = _LITERAL_NAMES.get(type(v), f"{type(v).__name__} is")
                 self.fail_node(_not_in_language(what), node)
@@ -876,6 +912,10 @@ class _Reader:
             return self.binop(node, depth)
         if isinstance(node, ast.Attribute):
             a = self.tr(node.value, depth)  # the leftmost problem is reported first
+            if node.attr in ("real", "imag"):
+                from .calls_complex import real_or_imag
+
+                return real_or_imag(node.attr, a)
             if node.attr != "T":
                 if node.attr.startswith("__"):
                     what = f"dunder attributes like .{node.attr} are"
@@ -1089,6 +1129,10 @@ class _Reader:
                         "formula language has its own functions (trace, inv, exp, ...)",
                         node.func,
                     )
+                if node.func.attr == "conj" and not node.args and not node.keywords:
+                    from .calls_complex import conjugate
+
+                    return conjugate(self.tr(owner, depth))
                 self.tr(owner, depth)  # the leftmost problem is reported first
                 self.fail_attr(
                     f"method calls like .{node.func.attr}(...) {_not_in_language('are')}; "
@@ -1135,6 +1179,8 @@ class _Reader:
             if fname in self.env:
                 self.fail_node(f"{fname} is a symbol, not a function", node.func)
             close = difflib.get_close_matches(fname, list(FUNCTIONS), n=1)
+            if close and close[0] in _COMPLEX_FUNCTIONS and hasattr(builtins, fname):
+                close = []  # eval is no misspelt real: Python's builtins get their own message
             hint = f"; did you mean {close[0]}?" if close else ""
             if hasattr(builtins, fname) or fname in _GENERATED_MODULE_NAMES:
                 hint = (

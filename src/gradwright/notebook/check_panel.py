@@ -12,6 +12,7 @@ import math
 import numpy as np
 
 from .fdcheck import (
+    COMPLEX_STEP_UNAVAILABLE,
     METHODS,
     CheckResult,
     default_step,
@@ -320,6 +321,8 @@ class CheckPanel:
                 )
             )
             rows.append(self.dims_message)
+        if getattr(self.derivation, "is_complex", False):
+            rows.append(w.HTML(f"<small>{html.escape(COMPLEX_STEP_UNAVAILABLE)}.</small>"))
         rows += [
             w.HBox([self.variable, self.seed]),
             w.HBox(

@@ -31,6 +31,14 @@ ENTRYWISE_LIMIT = 144  # independent entries per variable checked one by one (2 
 SWEEP_EXPONENTS = np.linspace(-13.0, -1.0, 25)
 
 
+#: said wherever a complex block is checked
+COMPLEX_STEP_UNAVAILABLE = (
+    "the complex step is unavailable for complex inputs (it needs a real function of real "
+    "inputs); complex variables are checked with central or forward differences along real "
+    "and imaginary directions"
+)
+
+
 def default_step(method: str) -> float:
     """Step relative to the variable's scale, max(1, rms of its entries).
 
@@ -121,10 +129,25 @@ class CheckResult:
 # --- inputs -------------------------------------------------------------------------------
 
 
+def _is_complex(derivation, name: str) -> bool:
+    """True for a symbol of a complex block declared complex (complex, hermitian or hpd)."""
+    field = getattr(derivation, "field", None)
+    return field is not None and field(name) == "complex"
+
+
 def _structure_fits(value: np.ndarray, structure: tuple) -> bool:
     if not np.all(np.isfinite(value)):
         return False
     for word in structure:
+        if word in ("hermitian", "hpd") and (
+            value.ndim != 2 or not np.allclose(value, np.conj(value).T)
+        ):
+            return False
+        if word == "hpd":
+            try:
+                np.linalg.cholesky(value)
+            except np.linalg.LinAlgError:
+                return False
         if word in ("symmetric", "spd") and (value.ndim != 2 or not np.allclose(value, value.T)):
             return False
         if word == "spd":
@@ -158,7 +181,8 @@ def fit_namespace(derivation, namespace: dict, names) -> tuple[dict, dict, dict]
         info = derivation.symbols.get(name)
         if info is None:
             continue
-        if np.iscomplexobj(namespace[name]):
+        is_complex = _is_complex(derivation, name)
+        if np.iscomplexobj(namespace[name]) and not is_complex:
             # casting would drop the imaginary part and check a different point
             refused[name] = (
                 f"is a complex array, but {name} is declared real (declare it complex, or pass "
@@ -166,7 +190,7 @@ def fit_namespace(derivation, namespace: dict, names) -> tuple[dict, dict, dict]
             )
             continue
         try:
-            value = np.asarray(namespace[name], dtype=float)
+            value = np.asarray(namespace[name], dtype=complex if is_complex else float)
         except (TypeError, ValueError):
             refused[name] = "not a numeric array"
             continue
@@ -199,9 +223,15 @@ def fit_namespace(derivation, namespace: dict, names) -> tuple[dict, dict, dict]
 # --- directions ---------------------------------------------------------------------------
 
 
-def _direction(rng: np.random.Generator, value, structure: tuple) -> np.ndarray:
+def _direction(rng: np.random.Generator, value, structure: tuple, k: int = 0) -> np.ndarray:
     value = np.asarray(value)
     raw = rng.standard_normal(value.shape)
+    if np.iscomplexobj(value):
+        # a complex variable: real and imaginary directions in turn (∂/∂Re, then ∂/∂Im)
+        raw = raw + 0j if k % 2 == 0 else 1j * raw
+        if value.ndim == 2 and ("hermitian" in structure or "hpd" in structure):
+            return (raw + np.conj(raw).T) / 2.0
+        return raw
     if value.ndim == 2 and ("symmetric" in structure or "spd" in structure):
         return (raw + raw.T) / 2.0
     if value.ndim == 2 and "diagonal" in structure:
@@ -244,7 +274,8 @@ class _Evaluator:
         self.function = derivation.function()
         self.arrays = arrays
         self.variable = variable
-        self.x0 = np.asarray(arrays[variable], dtype=float)
+        x0 = np.asarray(arrays[variable])
+        self.x0 = x0 if np.iscomplexobj(x0) else np.asarray(x0, dtype=float)
 
     def at(self, offset) -> np.ndarray:
         point = dict(self.arrays)
@@ -309,6 +340,8 @@ def run_check(
     """
     if method not in METHODS:
         raise ValueError(f"unknown method {method!r}; expected one of {', '.join(METHODS)}")
+    if method == "complex step" and getattr(derivation, "is_complex", False):
+        raise ValueError(COMPLEX_STEP_UNAVAILABLE)
     step = default_step(method) if step is None else float(step)
     tolerance = default_tolerance(method) if tolerance is None else float(tolerance)
     result = CheckResult(
@@ -357,14 +390,16 @@ def _check_variable(derivation, variable, arrays, method, step, rng, directions,
     structure = tuple(info.structure)
     evaluator = _Evaluator(derivation, arrays, variable)
     x0 = evaluator.x0
-    scale = max(1.0, float(np.sqrt(np.mean(x0**2)))) if x0.size else 1.0
+    scale = max(1.0, float(np.sqrt(np.mean(np.abs(x0) ** 2)))) if x0.size else 1.0
     h = step * scale
     check = VariableCheck(variable=variable, shape=tuple(x0.shape), step=h)
     f0 = evaluator.at(np.zeros_like(x0))
     floor = 100.0 * _noise(method, f0, h)
     scalar_target = bool(derivation.is_scalar)
     if scalar_target:
-        gradient = np.asarray(derivation.gradient_function(variable)(**arrays), dtype=float)
+        gradient = np.asarray(derivation.gradient_function(variable)(**arrays))
+        if not np.iscomplexobj(x0):
+            gradient = np.asarray(gradient, dtype=float)
         if gradient.shape != x0.shape:
             raise ValueError(
                 f"the gradient with respect to {variable} has shape {gradient.shape}, "
@@ -376,10 +411,11 @@ def _check_variable(derivation, variable, arrays, method, step, rng, directions,
 
     first = None
     for k in range(directions):
-        v = _direction(rng, x0, structure)
+        v = _direction(rng, x0, structure, k)
         numeric = evaluator.finite_difference(v, h, method, f0)
         if scalar_target:
-            analytic = float(np.sum(gradient * v))
+            # Re <G, v>: the directional derivative promised by G = ∂f/∂Re + i ∂f/∂Im
+            analytic = float(np.real(np.sum(np.conj(gradient) * v)))
             scale_terms = float(np.sum(np.abs(gradient * v)))
             numeric = float(numeric)
             rel = _rel(abs(analytic - numeric), max(scale_terms, abs(numeric)), floor)
@@ -397,11 +433,13 @@ def _check_variable(derivation, variable, arrays, method, step, rng, directions,
                     rel,
                 )
             )
-            # The VJP through its defining identity <W, J v> = <J^T W, v>.
+            # The VJP through its defining identity Re <W, J v> = Re <J* W, v>.
             w = rng.standard_normal(np.shape(f0))
+            if np.iscomplexobj(f0):
+                w = w + 1j * rng.standard_normal(np.shape(f0))
             back = np.asarray(vjp(w if w.ndim else w[()], **arrays))
-            left = float(np.sum(back * v))
-            right = float(np.sum(w * numeric))
+            left = float(np.real(np.sum(np.conj(back) * v)))
+            right = float(np.real(np.sum(np.conj(w) * numeric)))
             terms = float(np.sum(np.abs(back * v)))
             rel_vjp = _rel(abs(left - right), max(terms, abs(right)), floor * np.sum(np.abs(w)))
             check.directional.append((f"VJP direction {k + 1}", left, right, rel_vjp))
@@ -421,7 +459,7 @@ def _check_variable(derivation, variable, arrays, method, step, rng, directions,
             None if scalar_target else jvp,
         )
 
-    basis = list(_basis(x0, structure))
+    basis = list(_basis(x0, structure)) if not np.iscomplexobj(x0) else []
     if basis and len(basis) <= limit:
         errors = np.full(x0.shape, np.nan)
         if scalar_target:
@@ -457,7 +495,7 @@ def _sweep(derivation, evaluator, v, scale, f0, arrays, variable, gradient, jvp)
     if getattr(derivation, "supports_complex_step", False):
         methods.append("complex step")
     if gradient is not None:
-        analytic = np.asarray(np.sum(gradient * v))
+        analytic = np.asarray(np.real(np.sum(np.conj(gradient) * v)))
         terms = float(np.sum(np.abs(gradient * v)))
     else:
         analytic = np.asarray(jvp(v if v.ndim else v[()], **arrays))

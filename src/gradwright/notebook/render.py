@@ -297,8 +297,10 @@ def shape_rows(derivation) -> list[dict]:
                 "shape": str(row["shape"]),
                 "structure": structure,
                 "role": str(row["role"]),
+                **({"field": str(row["field"])} if "field" in row else {}),
             }
         )
+    field_of = getattr(derivation, "field", None)  # complex blocks say real or complex
     target = derivation.target
     for var in derivation.variables:
         info = derivation.symbols[var]
@@ -309,6 +311,7 @@ def shape_rows(derivation) -> list[dict]:
                     "shape": _shape_text(info.shape),
                     "structure": _gradient_structure(info.structure),
                     "role": "result",
+                    **({"field": field_of(var)} if field_of else {}),
                 }
             )
         else:
@@ -334,6 +337,8 @@ def _gradient_structure(words) -> str:
         return "diagonal"
     if words & {"symmetric", "spd"}:
         return "symmetric"
+    if words & {"hermitian", "hpd"}:
+        return "hermitian"
     return ""
 
 
@@ -342,6 +347,8 @@ def shape_table_bundle(derivation) -> dict:
     rows = shape_rows(derivation)
     dims = dim_origins(derivation)
     head = ("symbol", "shape", "structure", "role")
+    if rows and all("field" in r for r in rows):
+        head = ("symbol", "shape", "field", "structure", "role")
 
     def cell(row, key):
         text = html.escape(row[key]) or "&ndash;"

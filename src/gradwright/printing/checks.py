@@ -40,7 +40,7 @@ def _gw_check(specs, last=None):
     given and no argument needed a conversion, remember the call's key there (fast path)."""
     dims, owner, out, products = _GwDims(), {}, [], []
     key, plain, kinds = [], last is not None, []
-    for name, value, spec in specs:
+    for name, value, spec, *field in specs:  # field: "complex" for a complex-declared input
         if spec:
             key += (type(value), getattr(value, "shape", None), getattr(value, "dtype", None))
         else:
@@ -56,7 +56,7 @@ def _gw_check(specs, last=None):
         if a.dtype.kind not in "biufc":
             got = f"dtype {a.dtype}" if isinstance(value, np.ndarray) else type(value).__name__
             raise TypeError(f"{name} must be a numeric array, got {got}")
-        if a.dtype.kind == "c" and not _GW_COMPLEX_STEP:
+        if a.dtype.kind == "c" and not _GW_COMPLEX_STEP and not field:
             if " " in name:  # a direction or cotangent, not a declared symbol
                 raise TypeError(
                     f"{name} is a complex array, but the block is real: pass a real array"
@@ -139,14 +139,15 @@ def _key_text(names_and_specs) -> str:
 def check_code(fname: str, entries: list) -> tuple[list[str], list[str]]:
     """(module-level lines, function-body lines) checking the arguments of `fname`.
 
-    `entries` lists (label, variable, spec text) in argument order; spec text as written into
-    the generated call, e.g. "('n', 'p')" or "()".
+    `entries` lists (label, variable, spec text[, "complex"]) in argument order; spec text as
+    written into the generated call, e.g. "('n', 'p')" or "()"; the marker lets a complex array
+    through for a complex-declared symbol (and the directions of a complex block).
     """
     if not entries:
         return [], ["    _dims = _gw_check(())[1]"]
     cache = f"_gw_last_{fname}"
-    targets = ", ".join(v for _, v, _ in entries) + ("," if len(entries) == 1 else "")
-    key = _key_text([(v, s) for _, v, s in entries])
+    targets = ", ".join(e[1] for e in entries) + ("," if len(entries) == 1 else "")
+    key = _key_text([(e[1], e[2]) for e in entries])
     body = [
         "    try:",
         f"        _hit = {cache}[0]",
@@ -156,12 +157,16 @@ def check_code(fname: str, entries: list) -> tuple[list[str], list[str]]:
         "    except (AttributeError, LookupError):",
         f"        ({targets}), _dims = _gw_check(",
         "            (",
-        *[f"                ({label!r}, {v}, {s})," for label, v, s in entries],
+        *[f"                ({e[0]!r}, {e[1]}, {e[2]}{_marker(e)})," for e in entries],
         "            ),",
         f"            {cache},",
         "        )",
     ]
     return [f"{cache} = [(None, None)]"], body
+
+
+def _marker(entry) -> str:
+    return f", {entry[3]!r}" if len(entry) > 3 else ""
 
 
 def finite_lines(name: str, shape, what: str) -> list[str]:

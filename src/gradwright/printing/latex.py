@@ -207,6 +207,8 @@ class LatexPrinter(LatexAxisMixin, Printer):
         a = e.args[0]
         if type(a) is E.Inverse:
             return self.paren(a.args[0], P.POSTFIX + 1) + r"^{-\top}"
+        if type(a) is E.Conj:  # the conjugate transpose
+            return self.paren(a.args[0], P.POSTFIX + 1) + r"^{\mathsf{H}}"
         return self.paren(a, P.POSTFIX + 1) + r"^{\top}"
 
     def _print_Inverse(self, e):
@@ -245,7 +247,7 @@ class LatexPrinter(LatexAxisMixin, Printer):
 
     def _print_LogDet(self, e):
         a = e.args[0]
-        if E.is_spd(a):
+        if E.is_spd(a) or (type(a) is E.Symbol and "hpd" in a.structure):
             return self.call(r"\log\det", a)
         return r"\log\left|\det " + self.paren(a, P.ATOM) + r"\right|"
 
@@ -280,6 +282,23 @@ class LatexPrinter(LatexAxisMixin, Printer):
 
     def _print_Softmax(self, e):
         return self.call(r"\operatorname{softmax}", e.args[0])
+
+    # --- complex arithmetic ----------------------------------------------------------------
+
+    def _print_Conj(self, e):
+        return rf"\overline{{{self._print(e.args[0])}}}"
+
+    def _print_Real(self, e):
+        return self.call(r"\operatorname{Re}", e.args[0])
+
+    def _print_Imag(self, e):
+        return self.call(r"\operatorname{Im}", e.args[0])
+
+    def _print_Abs(self, e):
+        return rf"\left|{self._print(e.args[0])}\right|"
+
+    def _print_ImagUnit(self, e):
+        return r"\mathrm{i}"
 
     def _print_SizeOf(self, e):
         return dim_latex(e.dim)

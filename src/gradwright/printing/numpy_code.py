@@ -11,6 +11,7 @@ import keyword
 from dataclasses import dataclass, field
 
 from .. import expr as E
+from ..complex_nodes import COMPLEX_WORDS
 from ..entrywise import EXTRA_ENTRYWISE
 from . import precedence as P
 from .axis_printing import AXIS_HELPERS, NumpyAxisMixin
@@ -394,6 +395,18 @@ class NumpyPrinter(NumpyAxisMixin, TextPrinter):
     def _print_Pi(self, e):
         return "np.pi"
 
+    def _print_Conj(self, e):
+        return f"np.conj({self._print(e.args[0])})"
+
+    def _print_Real(self, e):
+        return f"np.real({self._print(e.args[0])})"
+
+    def _print_Imag(self, e):
+        return f"np.imag({self._print(e.args[0])})"
+
+    def _print_Abs(self, e):
+        return f"np.abs({self._print(e.args[0])})"
+
     def _print_D(self, e):  # pragma: no cover
         raise AssertionError("pending differentials are never printed as code")
 
@@ -453,6 +466,8 @@ class CodeGen:
         self.lines: list[str] = []
         self.cholesky: dict = {}
         self.module_lines: list[str] = []
+        #: complex blocks: directions and cotangents may be complex arrays
+        self.complex_directions = False
 
     def arg_name(self, name: str) -> str:
         if keyword.iskeyword(name) or name.startswith("_"):  # pragma: no cover - parser refuses
@@ -489,10 +504,14 @@ class CodeGen:
 
     def check_lines(self, direction, fname: str = "f") -> list[str]:
         """The argument checks of one function; their module-level cache goes to self.module."""
-        entries = [(n, n, self.spec_of(self.symbols[n].shape)) for n in self.required]
+        entries = [
+            (n, n, self.spec_of(self.symbols[n].shape), *_field(self.symbols[n]))
+            for n in self.required
+        ]
         if direction is not None:
             pname, _sym, shape = direction
-            entries.append((_direction_label(direction), pname, self.spec_of(shape)))
+            marker = ("complex",) if self.complex_directions else ()
+            entries.append((_direction_label(direction), pname, self.spec_of(shape), *marker))
         self.helpers.add("_gw_check")
         module_lines, body = check_code(fname, entries)
         self.module_lines = module_lines
@@ -569,6 +588,11 @@ class CodeGen:
         body.append(f"    return {spec.returns}")
         self.directions = {}
         return "\n".join([*self.module_lines, "", ""] * bool(self.module_lines) + body)
+
+
+def _field(sym) -> tuple:
+    """The marker that lets a complex-declared symbol take complex arrays."""
+    return ("complex",) if sym.structure & COMPLEX_WORDS else ()
 
 
 def _direction_label(direction) -> str:

@@ -196,6 +196,23 @@ class TextPrinter(TextAxisMixin, Printer):
     def _print_MatPow(self, e):
         return self.fn("mpow", self._print(e.args[0]), str(e.args[1]))
 
+    # --- complex arithmetic ----------------------------------------------------------------
+
+    def _print_Conj(self, e):
+        return f"conj({self._print(e.args[0])})"
+
+    def _print_Real(self, e):
+        return f"real({self._print(e.args[0])})"
+
+    def _print_Imag(self, e):
+        return f"imag({self._print(e.args[0])})"
+
+    def _print_Abs(self, e):
+        return f"abs({self._print(e.args[0])})"
+
+    def _print_ImagUnit(self, e):
+        return "1j"
+
     def _print_KronContract(self, e):
         g, other, r, c, side = e.args
         return f"kron_contract_{side}({self._print(g)}, {self._print(other)})"
