@@ -49,7 +49,9 @@ def _symbol(x, d):
 
 @rule(E.Named, "definition", structural=True)
 def _named(x, d):
-    return d(x.body)
+    out = d(x.body)
+    # f'(body) written with the definition's name: d(tanh(u)) for H = tanh(u) is (1 - H²) du
+    return E.substitute(out, {x.body: x}) if x.children and x.body.children else out
 
 
 # --- linear structure -------------------------------------------------------------------------
