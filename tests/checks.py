@@ -35,6 +35,7 @@ __all__ = [
     "jax_reference",
     "UnreadableBlock",
     "jax_vjp",
+    "jax_packed",
     "jnp",
     "jax",
     "over_shapes",
@@ -484,3 +485,81 @@ def jax_reference(block_text: str, sizes: dict):
         return env[defs[-1][0]]
 
     return ref
+
+
+# --- packed parameter vectors (fitting) ---------------------------------------------------------
+
+
+def jax_packed(ref, arrays: dict, variables, shapes: dict):
+    """JAX's value, gradient and Hessian of `ref` over the variables packed end to end, each
+    column-major (reference library: JAX). Returns (flat, value, gradient, Hessian)."""
+    consts = _as_jax({k: v for k, v in arrays.items() if k not in variables})
+    sizes = [int(np.prod(shapes[v])) for v in variables]
+
+    def unpacked(flat):
+        out, start = {}, 0
+        for v, size in zip(variables, sizes):
+            piece = flat[start : start + size]
+            out[v] = (
+                piece.reshape(shapes[v][::-1]).T
+                if len(shapes[v]) == 2
+                else (piece.reshape(shapes[v]))
+            )
+            start += size
+        return out
+
+    def f(flat):
+        return ref(**consts, **unpacked(flat))
+
+    flat = np.concatenate([np.ravel(np.asarray(arrays[v], float), order="F") for v in variables])
+    x = jnp.asarray(flat)
+    return (
+        flat,
+        float(f(x)),
+        np.asarray(jax.grad(f)(x)),
+        np.asarray(jax.hessian(f)(x)),
+    )
+
+
+# --- references for spectral functions, factorizations and matrix equations (issue 9) -----------
+
+
+def _jax_kron_solve(op, q):
+    x = jnp.linalg.solve(op, jnp.ravel(q, order="F"))
+    return jnp.reshape(x, q.shape, order="F")
+
+
+def _jax_spectral(fn):
+    """f(S) = U f(Λ) Uᵀ for a symmetric S, differentiated by JAX through eigh."""
+
+    def apply(s):
+        w, u = jnp.linalg.eigh(s)
+        return (u * fn(w)) @ u.T
+
+    return apply
+
+
+def _matrix_function_references() -> dict:
+    """jnp readings of eigvalsh, cholesky, expm, sqrtm/logm (symmetric arguments: through eigh)
+    and SciPy's three matrix equations (through their Kronecker systems; Henderson and Searle,
+    1981: vec(A X B) = (Bᵀ ⊗ A) vec X)."""
+    eye = jnp.eye
+    return {
+        "eigvalsh": lambda s: jnp.linalg.eigvalsh(s),
+        "cholesky": lambda s: jnp.linalg.cholesky(s),
+        "expm": lambda a: jax.scipy.linalg.expm(a),
+        "sqrtm": _jax_spectral(jnp.sqrt),
+        "logm": _jax_spectral(jnp.log),
+        "solve_sylvester": lambda a, b, q: _jax_kron_solve(
+            jnp.kron(eye(b.shape[0]), a) + jnp.kron(b.T, eye(a.shape[0])), q
+        ),
+        "solve_continuous_lyapunov": lambda a, q: _jax_kron_solve(
+            jnp.kron(eye(a.shape[0]), a) + jnp.kron(a, eye(a.shape[0])), q
+        ),
+        "solve_discrete_lyapunov": lambda a, q: _jax_kron_solve(
+            eye(a.shape[0] ** 2) - jnp.kron(a, a), q
+        ),
+    }
+
+
+_JAX_FUNCS.update(_matrix_function_references())

@@ -15,19 +15,42 @@ def run(*args, stdin=None):
     )
 
 
-def test_derive_prints_steps_shapes_result_and_code():
+def test_derive_prints_the_derivation_and_the_result_code_on_request():
     out = run("derive", str(BLOCKS / "store_demand.gw"), "--wrt", "U", "V")
     assert out.returncode == 0, out.stderr
     text = out.stdout
-    for part in ("Derivation", "Shapes", "Result", "def value_and_gradient("):
+    for part in ("Derivation", "Shapes", "Result"):
         assert part in text
-    assert "∂loss/∂U = -2 * (R @ V) + 2 * mu * U" in text
+    assert "def value_and_gradient(" not in text  # code only on request
+    assert len(text.splitlines()) < 60
+    assert "∂loss/∂U = -2 * (R @ V) + 2 * mu * U" in text  # one notation: ∂, as in the notebook
+    out = run("derive", str(BLOCKS / "store_demand.gw"), "--wrt", "U", "V", "--code")
+    assert "Result" in out.stdout and "def value_and_gradient(" in out.stdout
+
+
+def test_show_takes_the_values_of_the_magic():
+    from gradwright.notebook.render import SHOW_CHOICES
+
+    for value in SHOW_CHOICES:
+        out = run("derive", str(BLOCKS / "store_demand.gw"), "--wrt", "U", "--show", value)
+        assert out.returncode == 0, out.stderr
+    assert (
+        run("derive", str(BLOCKS / "store_demand.gw"), "--wrt", "U", "--show", "none").stdout == ""
+    )
+    result = run("derive", str(BLOCKS / "store_demand.gw"), "--wrt", "U", "--show", "result")
+    assert result.stdout.startswith("Result\n∂loss/∂U = ")
+    out = run("derive", str(BLOCKS / "store_demand.gw"), "--wrt", "U", "--show", "all")
+    assert out.returncode == 2 and "invalid choice" in out.stderr
 
 
 def test_latex_and_code_only():
-    out = run("derive", str(BLOCKS / "soil_covariance.gw"), "--wrt", "S", "--show", "latex")
-    assert out.stdout.startswith("\\begin{aligned}")
-    out = run("derive", str(BLOCKS / "robot_arm.gw"), "--wrt", "W1", "W2", "--show", "code")
+    out = run(
+        "derive", str(BLOCKS / "soil_covariance.gw"), "--wrt", "S", "--show", "none", "--latex"
+    )
+    assert out.stdout.startswith("\\begin{tabular}") and "\\begin{aligned}" in out.stdout
+    out = run(
+        "derive", str(BLOCKS / "robot_arm.gw"), "--wrt", "W1", "W2", "--show", "none", "--code"
+    )
     assert "def vjp_W1(" in out.stdout and "Derivation" not in out.stdout
 
 

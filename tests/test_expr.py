@@ -7,6 +7,7 @@ import pathlib
 import pytest
 
 from gradwright import expr as E
+from gradwright import matrix_functions as M
 from gradwright.calculus import ADJOINTS, RULES
 from gradwright.language import parse_block
 from gradwright.printing.latex import LatexPrinter
@@ -57,12 +58,33 @@ EXAMPLES = {
     E.Index: E.Index(B, ("slice", 1, 3), ("at", -1)),
 }
 
+# the spectral, factorization and matrix-equation family (gradwright.matrix_functions)
+S = E.Symbol("S", (n, n), frozenset({"spd"}))
+EXAMPLES.update(
+    {
+        M.Eigvalsh: M.Eigvalsh(S),
+        M.EigvalshJvp: M.EigvalshJvp(S, E.Differential(S)),
+        M.EigvalshVjp: M.EigvalshVjp(S, x),
+        M.Cholesky: M.Cholesky(S),
+        M.CholeskyJvp: M.CholeskyJvp(M.Cholesky(S), E.Differential(S)),
+        M.CholeskyVjp: M.CholeskyVjp(M.Cholesky(S), A),
+        M.MatrixFunction: M.MatrixFunction("expm", A),
+        M.SpectralFrechet: M.SpectralFrechet("logm", S, A),
+        M.ExpmFrechet: M.ExpmFrechet(A, E.Differential(A)),
+        M.LogmFrechet: M.LogmFrechet(A, E.Differential(A)),
+        M.SolveSylvester: M.SolveSylvester(A, A, A),
+        M.SolveContinuousLyapunov: M.SolveContinuousLyapunov(A, S),
+        M.SolveDiscreteLyapunov: M.SolveDiscreteLyapunov(A, S),
+    }
+)
+
 #: classes that never occur inside a differential (or are its leaves, handled by the driver),
 #: so they need no adjoint rule
 NOT_LINEAR = {
     E.Differential,
     E.Symbol, E.Const, E.Identity, E.Ones, E.Zero, E.Commutation, E.Power, E.Func, E.Det,
     E.LogDet, E.Inverse, E.Norm, E.LogSumExp, E.Softmax, E.MatPow, E.Named, E.D,
+    M.Eigvalsh, M.Cholesky, M.MatrixFunction,
 }  # fmt: skip
 NOT_LINEAR |= {E.SizeOf, E.Pi}  # numbers of the language: constants
 #: classes the code generator never prints (pending differentials exist only in displayed steps)
@@ -97,7 +119,11 @@ def test_every_node_has_a_rule_an_adjoint_and_printers(cls):
 def test_every_node_class_is_named_in_some_test():
     tests = pathlib.Path(__file__).parent
     corpus = "\n".join(p.read_text() for p in tests.rglob("test_*.py"))
-    missing = [c.__name__ for c in E.NODE_CLASSES if f"E.{c.__name__}" not in corpus]
+    missing = [
+        c.__name__
+        for c in E.NODE_CLASSES
+        if f"E.{c.__name__}" not in corpus and f"M.{c.__name__}" not in corpus
+    ]
     assert not missing, f"node classes without a test: {missing}"
 
 

@@ -14,7 +14,7 @@ from __future__ import annotations
 import numbers
 
 from .derivation import Derivation, Step, SymbolInfo
-from .errors import FormulaError, NotSupportedError
+from .errors import FormulaError, NotSupportedError, at_the_boundary
 
 __all__ = [
     "Derivation",
@@ -31,6 +31,7 @@ __version__ = "0.1.0"
 MAX_EXPANDED_SIZE = 100_000
 
 
+@at_the_boundary
 def derive(text: str, wrt, *, shapes: dict | None = None, sizes: dict | None = None) -> Derivation:
     """Derive a block (or one expression with `shapes`) with respect to the variables `wrt`.
 

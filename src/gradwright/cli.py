@@ -1,6 +1,7 @@
-"""The command line: derive a block file and print the steps, shapes, derivative and code.
+"""The command line: derive a block file and print the derivation and its result; the
+generated code and the LaTeX on request.
 
-python -m gradwright derive FILE --wrt U V [--show steps|result|latex|code]
+python -m gradwright derive FILE --wrt U V [--show steps|result|none] [--code] [--latex]
 """
 
 from __future__ import annotations
@@ -10,6 +11,7 @@ import sys
 
 from . import derive
 from .errors import FormulaError
+from .notebook.render import SHOW_CHOICES  # the same values as %%derive --show
 
 
 def _parser() -> argparse.ArgumentParser:
@@ -22,9 +24,14 @@ def _parser() -> argparse.ArgumentParser:
     d.add_argument("--wrt", nargs="+", required=True, metavar="VAR", help="the variables")
     d.add_argument(
         "--show",
-        choices=("all", "steps", "result", "latex", "code"),
-        default="all",
-        help="what to print: all (default), steps, result, latex (the derivation), code",
+        choices=SHOW_CHOICES,
+        default="steps",
+        help="what to print, as in %%%%derive: every step with its rule, the shapes and the "
+        "result (steps, the default), the result only, or none",
+    )
+    d.add_argument("--code", action="store_true", help="also print the generated NumPy code")
+    d.add_argument(
+        "--latex", action="store_true", help="also print the derivation as LaTeX (to_latex)"
     )
     d.add_argument(
         "--size",
@@ -63,24 +70,22 @@ def main(argv: list[str] | None = None) -> int:
     try:
         d = derive(text, wrt=args.wrt, sizes=sizes or None)
         parts = []
-        if args.show in ("all", "steps"):
+        if args.show == "steps":
             parts.append("Derivation\n" + d.text_steps())
-        if args.show in ("all",):
             parts.append("Shapes\n" + _table(d.shape_table()))
-        if args.show in ("all", "result"):
+        if args.show in ("steps", "result"):
             parts.append("Result\n" + _result(d))
-        if args.show == "latex":
-            parts.append(d.latex())
-        if args.show in ("all", "code"):
-            parts.append(
-                d.source() if args.show == "code" else "Generated NumPy code\n" + d.source()
-            )
+        if args.latex:
+            parts.append(d.to_latex() if parts else d.to_latex().rstrip("\n"))
+        if args.code:
+            parts.append("Generated NumPy code\n" + d.source() if parts else d.source())
     except FormulaError as err:
         where = "" if args.file == "-" else f"{args.file}: "
         print(f"gradwright: {where}{err}", file=sys.stderr)
         return 2
     try:
-        print("\n\n".join(parts))
+        if parts:
+            print("\n\n".join(parts))
     except BrokenPipeError:  # the reader (e.g. `head`) stopped early
         sys.stderr.close()
     return 0
@@ -92,9 +97,9 @@ def _result(d) -> str:
     lines = []
     for step in d.steps:
         if step.kind == "gradient":
-            lines.append(f"d{d.target}/d{step.var} = {step.text()}")
+            lines.append(f"∂{d.target}/∂{step.var} = {step.text()}")
         elif step.kind == "jacobian":
-            lines.append(f"dvec({d.target})/dvec({step.var})^T = {step.text()}")
+            lines.append(f"∂vec({d.target})/∂vec({step.var})ᵀ = {step.text()}")
     if not d.is_scalar and not lines:
         lines.append(
             f"d{d.target} = {text(d.differential())}  (the JVP; the VJP and the dense "

@@ -6,18 +6,28 @@ Everything is computed from the one differential value `d(f)`, lazily, and cache
 from __future__ import annotations
 
 import functools
+import inspect
+import itertools
+import linecache
+import types
 from dataclasses import dataclass
 
 from . import expr as E
 from .calculus import adjoint, differential, expand_once, has_pending, kronecker_form
 from .errors import FormulaError, NotSupportedError, ShapeError
 from .language import Block
+from .matrix_checks import adjust_samples
+from .matrix_functions import NODES as _MATRIX_NODES
 from .printing import latex, symbol_latex, text
 from .printing import numpy_code as C
+from .printing.latex import differential_latex
+from .printing.structure import known_spd
 from .sampling import default_sizes, needs_positive, sample_inputs
 from .simplify import simplify
 
 MAX_STEPS = 40
+#: the widest line of a printed step, in ems, before it breaks at an operator
+LINE_BUDGET = 36.0
 #: Hessian-vector products are generated only for gradients up to this size (written out)
 MAX_HESSIAN_GRADIENT = 2_000
 
@@ -211,7 +221,7 @@ class Derivation:
     @functools.cached_property
     def steps(self) -> list[Step]:
         wrt = frozenset(self.variables)
-        lhs = r"\mathrm{d}" + _name_latex(self.target)
+        lhs = differential_latex(_name_latex(self.target))
         steps = [Step("differential", E.D(E.Named(self.target, self.expr)), "", lhs)]
         current = (
             E.D(self.expr)
@@ -278,7 +288,7 @@ class Derivation:
                         "differential",
                         E.add(*parts),
                         "vectorize: vec(A dX B) = (Bᵀ ⊗ A) vec(dX)",
-                        r"\operatorname{vec}(\mathrm{d}" + _name_latex(self.target) + ")",
+                        r"\operatorname{vec}(" + differential_latex(_name_latex(self.target)) + ")",
                     )
                 )
                 for v in self.variables:
@@ -296,12 +306,16 @@ class Derivation:
 
     def latex(self) -> str:
         """The derivation as one aligned environment, rule names beside each line."""
+        from .printing.layout import broken_lines, rule_math
+
         lines = []
         prev_lhs = None
         for step in self.steps[1:]:
             lhs = step.lhs_latex if step.lhs_latex != prev_lhs else ""
-            rule = rf" && \text{{{_latex_text(step.rule)}}}" if step.rule else ""
-            lines.append(f"{lhs} &= {step.latex()}{rule}")
+            rule = f" && {rule_math(step.rule)}" if step.rule else ""
+            first, *rest = broken_lines(step.expr, LINE_BUDGET)
+            lines.append(f"{lhs} &= {first}{rule}")
+            lines.extend(rf"&\qquad {more}" for more in rest)
             prev_lhs = step.lhs_latex
         return "\\begin{aligned}\n" + " \\\\\n".join(lines) + "\n\\end{aligned}"
 
@@ -314,9 +328,13 @@ class Derivation:
 
     def result_latex(self) -> str:
         lines = []
+        from .printing.layout import broken_lines
+
         for step in self.steps:
             if step.kind in ("gradient", "jacobian"):
-                lines.append(f"{step.lhs_latex} &= {step.latex()}")
+                first, *rest = broken_lines(step.expr, LINE_BUDGET)
+                lines.append(f"{step.lhs_latex} &= {first}")
+                lines.extend(rf"&\qquad {more}" for more in rest)
         return "\\begin{aligned}\n" + " \\\\\n".join(lines) + "\n\\end{aligned}"
 
     def to_latex(self) -> str:
@@ -348,9 +366,11 @@ class Derivation:
         missing = [d for d in self.block.dims if d not in all_sizes]
         if missing:  # pragma: no cover - default_sizes covers every dim
             raise FormulaError(f"no size for dims {', '.join(missing)}")
-        return sample_inputs(
+        drawn = sample_inputs(
             self.block.declarations, all_sizes, seed, positive=needs_positive(self.expr)
         )
+        # spectral functions and matrix equations need more than the structure words say
+        return adjust_samples(self.expr, self.block.declarations, drawn, seed)
 
     @functools.cached_property
     def supports_complex_step(self) -> bool:
@@ -358,16 +378,20 @@ class Derivation:
             t = type(node)
             if t in (E.LogDet, E.Norm) or (t is E.Func and node.name == "softplus"):
                 return False
-            if t in (E.Solve, E.Inverse) and E.is_spd(node.args[0]):
+            if t in (E.Solve, E.Inverse) and known_spd(node.args[0]):  # Cholesky: not analytic
+                return False
+            if t in _MATRIX_NODES:  # eigh, cholesky and SciPy's solvers: no complex step
                 return False
         return True
 
-    def _cost(self) -> C.CostModel:
-        return C.CostModel(C.guess_sizes(self.expr, self.size_hints))
+    def _cost(self, sizes: dict | None = None) -> C.CostModel:
+        # dims found large at call time (chunked Dask axes) yield to the user's own hints
+        hints = {**(sizes or {}), **self.size_hints}
+        return C.CostModel(C.guess_sizes(self.expr, hints), hinted=hints)
 
-    def _specs(self) -> list:
+    def _specs(self, sizes: dict | None = None) -> list:
         tgt_shape = self.expr.shape
-        cost = self._cost()
+        cost = self._cost(sizes)
         gen = C.CodeGen(self.block.declarations, self.arguments(), cost, use_cholesky=True)
         value = C.lower(self.expr, cost)
         specs = [
@@ -448,11 +472,9 @@ class Derivation:
                     "_jac",
                     loop=(
                         f"    _n_in, _n_out = {n_in}, {n_out}\n"
-                        "    _jac = np.empty((_n_out, _n_in), dtype=np.result_type(float, "
-                        + (gen.required[0] if gen.required else "0.0")
-                        + "))\n"
+                        "    _jac = np.empty((_n_out, _n_in), dtype=_dims.dtype)\n"
                         "    for _k in range(_n_in):\n"
-                        "        _e = np.zeros(_n_in)\n"
+                        "        _e = np.zeros(_n_in, dtype=_dims.dtype)\n"
                         "        _e[_k] = 1.0\n"
                         f'        _col = _gw_functions["jvp_{v}"]({reshape_in}, {call_args})\n'
                         '        _jac[:, _k] = np.reshape(_col, -1, order="F")'
@@ -484,9 +506,9 @@ class Derivation:
                         "_hess",
                         loop=(
                             f"    _n_in = {n_in}\n"
-                            "    _hess = np.empty((_n_in, _n_in))\n"
+                            "    _hess = np.empty((_n_in, _n_in), dtype=_dims.dtype)\n"
                             "    for _k in range(_n_in):\n"
-                            "        _e = np.zeros(_n_in)\n"
+                            "        _e = np.zeros(_n_in, dtype=_dims.dtype)\n"
                             "        _e[_k] = 1.0\n"
                             f'        _col = _gw_functions["hvp_{v}"]({reshape_in}, {call_args})\n'
                             '        _hess[:, _k] = np.reshape(_col, -1, order="F")'
@@ -495,38 +517,55 @@ class Derivation:
                 )
         return gen, specs
 
-    def source(self) -> str:
-        """The generated Python module (NumPy; SciPy only for spd Cholesky factors)."""
+    def source(self, backend: str = "numpy", sizes: dict | None = None) -> str:
+        """The generated Python module: NumPy (SciPy only for spd Cholesky factors), or with
+        `backend="torch"`, `"jax"`, `"cupy"`, `"dask"` or `"array_api"` (any of them, chosen by
+        the arguments) a module computing with that library through array-api-compat.
+        `sizes` (dim -> typical size) steers the order of products, like derive's `sizes`.
+
+        >>> from gradwright import derive
+        >>> d = derive("X: (n, p)\\nw: (p,)\\ny: (n,)\\nf = sum((X @ w - y)**2)", wrt="w")
+        >>> "def gradient_w(" in d.source(backend="torch")
+        True
+        """
+        if backend != "numpy" or sizes:
+            from .backends import module_source
+
+            return module_source(self, backend, sizes)
         if self._source is None:
-            try:
-                gen, specs = self._specs()
-                funcs = [gen.function(s) for s in specs]
-            except ShapeError as err:  # a safety net: no internal error reaches the user
-                raise NotSupportedError(
-                    f"not supported yet: generating NumPy code for this block ({err})"
-                ) from None
-            header = (
-                '"""NumPy code generated by gradwright from the block:\n\n'
-                + "\n".join(
-                    "    " + line
-                    for line in self.text_block.strip("\n")
-                    .replace("\\", "\\\\")
-                    .replace('"""', "'''")
-                    .split("\n")
-                )
-                + (
-                    f"\n\nVariables: {', '.join(self.variables)}. Arrays are passed by keyword.\n"
-                    '"""'
-                )
-            )
-            self._source = C.module(header, funcs, gen.helpers, gen.uses_scipy)
+            self._source = self._numpy_source()
         return self._source
+
+    def _numpy_source(self, sizes: dict | None = None) -> str:
+        try:
+            gen, specs = self._specs(sizes)
+            funcs = [gen.function(s) for s in specs]
+        except ShapeError as err:  # a safety net: no internal error reaches the user
+            raise NotSupportedError(
+                f"not supported yet: generating NumPy code for this block ({err})"
+            ) from None
+        header = (
+            '"""NumPy code generated by gradwright from the block:\n\n'
+            + "\n".join(
+                "    " + line
+                for line in self.text_block.strip("\n")
+                .replace("\\", "\\\\")
+                .replace('"""', "'''")
+                .split("\n")
+            )
+            + (f'\n\nVariables: {", ".join(self.variables)}. Arrays are passed by keyword.\n"""')
+        )
+        return C.module(header, funcs, gen.helpers, gen.uses_scipy)
 
     def _namespace(self) -> dict:
         if self._functions is None:
             ns: dict = {"__name__": f"gradwright_generated_{self.target}"}
+            source = self.source()
+            filename = f"<gradwright {self.target} #{next(_GENERATED)}>"
+            # tracebacks and inspect.getsource show the generated lines, not "no source"
+            linecache.cache[filename] = (len(source), None, source.splitlines(True), filename)
             # our own printer wrote this text from the tree; no user text is executed
-            exec(compile(self.source(), f"<gradwright {self.target}>", "exec"), ns)  # noqa: S102
+            exec(compile(source, filename, "exec"), ns)  # noqa: S102
             self._functions = ns
         return self._functions
 
@@ -534,7 +573,9 @@ class Derivation:
         ns = self._namespace()
         if name not in ns:
             raise NotSupportedError(f"not supported yet: {name.replace('_', ' ')} for this target")
-        return ns[name]
+        from .backends import dispatching  # NumPy arguments go straight to ns[name]
+
+        return _arrays_by_keyword(dispatching(self, name, ns))
 
     def function(self):
         """f(**arrays) -> the value of the target."""
@@ -582,14 +623,28 @@ class Derivation:
     def jacobian_function(self, var: str | None = None):
         return self._fn(f"jacobian_{self._check_var(var)}")
 
-    def hvp_function(self, var: str | None = None):
-        v = self._check_var(var)
+    def hvp_function(self, *vars_: str, var: str | None = None):
+        """hvp(V, **arrays): one variable as today (V shaped like it); with no variable named
+        and several in the derivation, or several named, V and the result are packed vectors
+        (the layout of `objective()`), cross blocks included."""
+        if var is None and (len(vars_) > 1 or (not vars_ and len(self.variables) > 1)):
+            from .fitting import packed_hvp_function
+
+            return packed_hvp_function(self, vars_ or self.variables)
+        v = self._check_var(var if var is not None else (vars_[0] if vars_ else None))
         if not self.is_scalar:
             self.gradient(v)
         return self._fn(f"hvp_{v}")
 
-    def hessian_function(self, var: str | None = None):
-        v = self._check_var(var)
+    def hessian_function(self, *vars_: str, var: str | None = None):
+        """h(**arrays): the dense Hessian over column-major vec X for one variable; with no
+        variable named and several in the derivation, or several named, one matrix over the
+        packed vector (the layout of `objective()`), cross blocks included."""
+        if var is None and (len(vars_) > 1 or (not vars_ and len(self.variables) > 1)):
+            from .fitting import packed_hessian_function
+
+            return packed_hessian_function(self, vars_ or self.variables)
+        v = self._check_var(var if var is not None else (vars_[0] if vars_ else None))
         if not self.is_scalar:
             self.gradient(v)
         return self._fn(f"hessian_{v}")
@@ -601,8 +656,112 @@ class Derivation:
         v = self._check_var(var)
         return stationary_point(self, v)
 
+    # --- fitting (the machinery lives in fitting.py and calculus/hessian.py) --------------------
+
+    def _block_hvp(self):
+        if "_block_hvp_fn" not in self.__dict__:
+            from .calculus.hessian import block_hvp_function
+
+            if not self.is_scalar:
+                self.gradient(self.variables[0])
+            self._block_hvp_fn = block_hvp_function(self)
+        return self._block_hvp_fn
+
+    def objective(self, *, args=(), **constants):
+        """The optimizer objective over the packed variables: `obj(flat, *args)` returns
+        `(value, packed gradient)`; `obj.hess`, `obj.hessp`, `obj.pack`, `obj.unpack`.
+        Constants are given here by name, or named in `args` and passed positionally after
+        the vector (as `scipy.optimize.minimize(obj, x0, args=(X, y), jac=True)` does)."""
+        from .fitting import Objective
+
+        return Objective(self, args, constants)
+
+    def second_derivative(self, first: str, second: str):
+        """The mixed second derivative of a scalar target in `first` and `second`:
+        d(∂f/∂first) along d(second), and its Kronecker form when one exists (`.latex()`)."""
+        from .calculus.hessian import mixed_derivative
+
+        first, second = self._check_var(first), self._check_var(second)
+        if not self.is_scalar:
+            self.gradient(first)
+        return mixed_derivative(self, first, second)
+
+    def values(self, **arrays) -> dict:
+        """{definition: value} for every definition of the block and the target, sharing work."""
+        if "_values_fn" not in self.__dict__:
+            from .fitting import values_function
+
+            self._values_fn = values_function(self)
+        return self._values_fn(**arrays)
+
+    def standard_errors(self, **arrays) -> dict:
+        """For a negative log-likelihood target at its minimum: {variable: standard errors
+        shaped like the variable}, the square roots of the diagonal of the inverse block
+        Hessian over the packed variables. Raises FormulaError if the Hessian is not positive
+        definite there."""
+        from .fitting import standard_errors
+
+        if not self.is_scalar:
+            self.gradient(self.variables[0])
+        return standard_errors(self, arrays)
+
+
+def _api_boundary(method):
+    """No internal error type reaches the user: a `ShapeError` or a broken internal invariant
+    raised while deriving becomes a `NotSupportedError` that says what was being done."""
+
+    @functools.wraps(method)
+    def wrapper(self, *args, **kwargs):
+        try:
+            return method(self, *args, **kwargs)
+        except FormulaError as err:  # the user's message without gradwright's frames behind it
+            raise err.with_traceback(None) from None
+        except (ShapeError, AssertionError) as err:
+            what = method.__name__.replace("_", " ")
+            raise NotSupportedError(f"not supported yet: {what} for this block ({err})") from None
+
+    return wrapper
+
+
+for _name in (
+    "differential", "gradient", "jacobian", "latex", "text_steps", "result_latex", "to_latex",
+    "source", "function", "gradient_function", "value_and_gradient_function", "jvp_function",
+    "vjp_function", "jacobian_function", "hvp_function", "hessian_function", "stationary_point",
+    "objective", "second_derivative", "values", "standard_errors", "sample_inputs",
+    "to_notebook",
+):  # fmt: skip
+    setattr(Derivation, _name, _api_boundary(getattr(Derivation, _name)))
+Derivation.steps = functools.cached_property(_api_boundary(Derivation.steps.func))
+Derivation.steps.__set_name__(Derivation, "steps")
+
 
 # ---------------------------------------------------------------------------------------------
+
+
+_GENERATED = itertools.count(1)
+
+
+def _arrays_by_keyword(fn):
+    """fn with a call that passes arrays by position refused in words that say what to do."""
+    params = inspect.signature(fn).parameters.values()
+    positional = [p.name for p in params if p.kind is not p.KEYWORD_ONLY]
+    keywords = [p.name for p in params if p.kind is p.KEYWORD_ONLY]
+
+    def call(*args, **arrays):
+        if len(args) > len(positional):
+            shown = ", ".join([*positional, *(f"{k}=..." for k in keywords)])
+            raise TypeError(
+                f"{fn.__name__}() got {len(args)} arrays by position: pass arrays by "
+                f"keyword: {fn.__name__}({shown})"
+            ) from None
+        return fn(*args, **arrays)
+
+    # the wrapper lives in the generated module's globals, like the function it stands for
+    # (callers read state such as the last chosen order from `g.__globals__`)
+    wrapped = types.FunctionType(
+        call.__code__, fn.__globals__, fn.__name__, call.__defaults__, call.__closure__
+    )
+    return functools.update_wrapper(wrapped, fn)
 
 
 def _words(sym: E.Symbol) -> tuple:
@@ -633,13 +792,6 @@ def _partial(target: str, var: str) -> str:
 
 def _name_latex(name: str) -> str:
     return symbol_latex(name)
-
-
-def _latex_text(words: str) -> str:
-    out = words.replace("\\", "")
-    for a, b in (("ᵀ", "^T"), ("⊗", " kron "), ("_", r"\_"), ("&", r"\&"), ("%", r"\%")):
-        out = out.replace(a, b)
-    return out
 
 
 def _plain_lhs(step: Step, target: str) -> str:

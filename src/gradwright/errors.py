@@ -72,3 +72,18 @@ class NotSupportedError(FormulaError):
 
 class ShapeError(Exception):
     """Raised by node constructors; the language layer turns it into a located FormulaError."""
+
+
+def at_the_boundary(fn):
+    """Public entry points re-raise a FormulaError without the internal frames behind it, so a
+    user sees the message and their own line, not gradwright's call stack."""
+    import functools
+
+    @functools.wraps(fn)
+    def entry(*args, **kwargs):
+        try:
+            return fn(*args, **kwargs)
+        except FormulaError as err:
+            raise err.with_traceback(None) from None
+
+    return entry

@@ -285,3 +285,6 @@ def evaluate(e: E.Expr, arrays: dict, differentials: dict | None = None, dims: d
     all_dims.update(dims or {})
     out = _Evaluator(internal, diffs, all_dims).ev(e)
     return to_user(out, e.shape)
+
+
+from . import matrix_evaluate  # noqa: E402, F401  (evaluation of the matrix-function family)

@@ -187,7 +187,23 @@ class Expr:
         return self._key
 
     def __repr__(self):
-        return self.key()
+        """The formula in the formula language, e.g. `2 * (X.T @ (X @ W - Y))`."""
+        return self._printed("text", self.key)
+
+    def __str__(self) -> str:
+        return self.__repr__()
+
+    def _repr_latex_(self) -> str:
+        """The formula as math in a notebook."""
+        return "$\\displaystyle " + self._printed("latex", lambda: r"\text{(not printable)}") + "$"
+
+    def _printed(self, kind: str, fallback) -> str:
+        from .printing import latex, text  # the printers import this module
+
+        try:
+            return (text if kind == "text" else latex)(self)
+        except Exception:  # a node without a printer yet: its key still identifies it
+            return fallback()
 
     @property
     def symbols(self) -> frozenset[str]:
@@ -744,7 +760,8 @@ def _is_symmetric(e: Expr) -> bool:
             if fs[i] != transpose(fs[n - 1 - i]):
                 return False
         return n % 2 == 0 or is_symmetric(fs[n // 2])
-    return False
+    known = getattr(e, "known_symmetric", None)  # node families in their own modules
+    return known() if known is not None else False
 
 
 def is_spd(e: Expr) -> bool:
@@ -759,7 +776,8 @@ def is_spd(e: Expr) -> bool:
         consts = [f for f in e.args if isinstance(f, Const)]
         others = [f for f in e.args if not isinstance(f, Const)]
         return len(others) == 1 and all(c.value > 0 for c in consts) and is_spd(others[0])
-    return False
+    known = getattr(e, "known_spd", None)  # node families in their own modules
+    return known() if known is not None else False
 
 
 def is_diagonal(e: Expr) -> bool:
@@ -1313,3 +1331,9 @@ def expanded_size(e: Expr, limit: int) -> int:
         stack.append((x, True))
         stack.extend((c, False) for c in x.children if id(c) not in memo)
     return memo[id(e)]
+
+
+# node families in their own modules; imported last because they build on the classes above
+from .matrix_functions import NODES as _MATRIX_NODES  # noqa: E402
+
+NODE_CLASSES = NODE_CLASSES + _MATRIX_NODES

@@ -28,6 +28,10 @@ ROOT = Path(__file__).resolve().parents[2]
 CHROMIUM = Path("/usr/bin/chromium")
 ARTIFACTS = ROOT / "test-artifacts"
 DEMO = ROOT / "notebooks_demo" / "store_week_demand.ipynb"
+#: the widest derivation (two Jacobians of a two-layer map): checked for layout too
+WIDE_DEMO = ROOT / "notebooks_demo" / "robot_arm_jacobians.ipynb"
+#: the output width the layout must fit (a 1,280 px window with the side bar closed)
+OUTPUT_WIDTH = 1100
 # Flags measured to work on our machines (testing-stack.md).
 CHROMIUM_FLAGS = [
     "--headless",
@@ -102,21 +106,22 @@ def _stop_server(proc: subprocess.Popen) -> None:
         proc.wait(timeout=10)
 
 
-def _notebook_for_test(workdir: Path) -> Path:
-    source = Path(os.environ.get("GRADWRIGHT_BROWSER_NOTEBOOK", DEMO))
+def _notebook_for_test(workdir: Path, default: Path = DEMO) -> Path:
+    source = Path(os.environ.get("GRADWRIGHT_BROWSER_NOTEBOOK", default))
     target = workdir / source.name
     shutil.copy(source, target)
     return target
 
 
-def test_demo_notebook_in_jupyterlab(tmp_path):
+@pytest.mark.parametrize("demo", [DEMO, WIDE_DEMO], ids=["store-week", "robot-arm"])
+def test_demo_notebook_in_jupyterlab(tmp_path, demo):
     _ensure_chromium()
     from playwright.sync_api import sync_playwright
 
     ARTIFACTS.mkdir(exist_ok=True)
     workdir = tmp_path / "root"
     workdir.mkdir()
-    notebook = _notebook_for_test(workdir)
+    notebook = _notebook_for_test(workdir, demo)
     settings_dir = tmp_path / "lab-settings"
     _write_settings(settings_dir)
 
@@ -161,6 +166,7 @@ def test_demo_notebook_in_jupyterlab(tmp_path):
                 page = browser.new_page(viewport={"width": 1280, "height": 2400})
                 try:
                     _run_notebook_and_click(page, port, token, notebook.name)
+                    _check_layout(page, notebook.stem)
                 except Exception:
                     # What the page looked like when it went wrong, for the test output.
                     page.screenshot(path=str(ARTIFACTS / "jupyterlab-failure.png"))
@@ -226,6 +232,65 @@ def _run_notebook_and_click(page, port: int, token: str, name: str) -> None:
     )
     if os.environ.get("GRADWRIGHT_UPDATE_SCREENSHOT") == "1":
         shutil.copy(shot, ROOT / "docs" / "screenshot.png")
+
+
+def _check_layout(page, stem: str) -> None:
+    """Nothing wider than the output: the derivation tables, their math and rule columns, the
+    panels; the math typeset without MathJax errors; the rules wrap between words only."""
+    page.wait_for_timeout(500)
+    report = page.evaluate(
+        r"""() => {
+            const out = {over: [], merror: document.querySelectorAll('mjx-merror').length,
+                         derivations: 0, widest: 0, rules: 0, brokenWords: [], outputWidth: 0};
+            const outputs = document.querySelectorAll('.jp-OutputArea-output');
+            for (const o of outputs) {
+                const box = o.getBoundingClientRect();
+                out.outputWidth = Math.max(out.outputWidth, box.width);
+                const parts = o.querySelectorAll(
+                    '.gradwright-derivation table, mjx-container, .gradwright-shapes table,' +
+                    ' .gradwright-check-panel, .gradwright-rule, .gradwright-identity-panel');
+                for (const el of parts) {
+                    const r = el.getBoundingClientRect();
+                    if (r.width > 0 && r.right > box.right + 1) {
+                        out.over.push(el.className + ' ' + Math.round(r.right - box.left) +
+                                      ' > ' + Math.round(box.width));
+                    }
+                }
+                if (o.scrollWidth > o.clientWidth + 1) {
+                    out.over.push('output scrolls: ' + o.scrollWidth + ' > ' + o.clientWidth);
+                }
+            }
+            for (const t of document.querySelectorAll('.gradwright-derivation table')) {
+                out.derivations += 1;
+                out.widest = Math.max(out.widest, t.getBoundingClientRect().width);
+            }
+            for (const rule of document.querySelectorAll('.gradwright-rule')) {
+                out.rules += 1;
+                // a rule wraps between words: no word is split over two lines
+                const range = document.createRange();
+                for (const node of rule.childNodes) {
+                    if (node.nodeType !== 3) continue;
+                    const words = node.textContent.split(/(\s+)/);
+                    let at = 0;
+                    for (const w of words) {
+                        if (w.trim().length > 1) {
+                            range.setStart(node, at); range.setEnd(node, at + w.length);
+                            if (range.getClientRects().length > 1) out.brokenWords.push(w);
+                        }
+                        at += w.length;
+                    }
+                }
+            }
+            return out;
+        }"""
+    )
+    page.screenshot(path=str(ARTIFACTS / f"jupyterlab-layout-{stem}.png"), full_page=True)
+    print(f"layout of {stem}: {report}")
+    assert report["merror"] == 0, f"MathJax errors: {report['merror']}"
+    assert report["derivations"] >= 1 and report["rules"] >= 1, report
+    assert not report["over"], report["over"][:5]
+    assert report["widest"] <= OUTPUT_WIDTH, report
+    assert not report["brokenWords"], report["brokenWords"][:5]
 
 
 def _accept_dialogs(page) -> None:

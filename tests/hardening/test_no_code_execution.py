@@ -25,6 +25,16 @@ ALLOWED_EXEC = {
     ("calculus/stationary.py", "compile"),
     ("notebook/export.py", "exec"),
     ("notebook/export.py", "compile"),
+    # the array-API module: the NumPy module's tree rewritten by printing/array_api_code.py
+    ("backends.py", "exec"),
+    ("backends.py", "compile"),
+    # the function families: module names from the package's own directory, never user text
+    ("language/parser.py", "import_module"),
+    # the packed block Hessian and the values of definitions: generated modules too
+    ("calculus/hessian.py", "exec"),
+    ("calculus/hessian.py", "compile"),
+    ("fitting.py", "exec"),
+    ("fitting.py", "compile"),
 }
 DANGEROUS_CALLS = {"eval", "exec", "compile", "__import__", "execfile", "import_module"}
 
@@ -90,18 +100,18 @@ BLOCKS = [
     ),  # fmt: skip
 ]
 
-MODULE_NAMES = {"np", "warnings", "cho_factor", "cho_solve"}
+MODULE_NAMES = {"np", "warnings", "cmath"}
 # names the generator uses inside functions besides `_`-prefixed ones (which no user name can
 # be, the parser refuses them)
 GENERATOR_LOCALS = {"_dims", "_direction", "_cotangent"}
 # the parser refuses user names starting with '_', so every such name is the generator's own
 GENERATOR_LOCAL_RE = re.compile(r"^(_[A-Za-z]\w*|grad_\w+)$")
-ALLOWED_BUILTINS = {"range", "float"}
-ARRAY_ATTRIBUTES = {"T", "reshape"}
+ALLOWED_BUILTINS = {"range", "float", "type", "min", "AttributeError", "LookupError"}
+ARRAY_ATTRIBUTES = {"T", "reshape", "shape", "dtype"}  # shape and dtype: the fast check
 IMPORTS = {
+    "import cmath",
     "import warnings",
     "import numpy as np",
-    "from scipy.linalg import cho_factor, cho_solve",
 }
 
 
@@ -128,6 +138,13 @@ def test_generated_source_uses_only_known_identifiers(block, wrt):
         if isinstance(stmt, (ast.Import, ast.ImportFrom)):
             assert ast.unparse(stmt) in IMPORTS
             continue
+        if isinstance(stmt, ast.Assign) and ast.dump(stmt) in helper_text:
+            continue  # a helper's own module-level state, verbatim
+        if isinstance(stmt, ast.Assign) and ast.unparse(stmt.value) == "[(None, None)]":
+            (target,) = stmt.targets  # the fast-path memory of one function's argument check
+            assert isinstance(target, ast.Name) and target.id.startswith("_gw_last_")
+            assert target.id[len("_gw_last_") :] in functions
+            continue
         if isinstance(stmt, ast.Assign):  # a table of the generated functions, by name
             (target,) = stmt.targets
             assert isinstance(target, ast.Name) and target.id.startswith("_gw_")
@@ -149,7 +166,8 @@ def test_generated_source_uses_only_known_identifiers(block, wrt):
                 assert ok, f"{stmt.name}: unexpected name {node.id}"
             elif isinstance(node, ast.Attribute):
                 assert not node.attr.startswith("_"), node.attr
-                assert _np_rooted(node) or node.attr in ARRAY_ATTRIBUTES, ast.unparse(node)
+                ok = _np_rooted(node) or node.attr in ARRAY_ATTRIBUTES
+                assert ok or ast.unparse(node) == "cmath.isfinite", ast.unparse(node)
             elif isinstance(node, (ast.Import, ast.ImportFrom, ast.Global, ast.Nonlocal,
                                    ast.Lambda, ast.ClassDef, ast.Delete)):  # fmt: skip
                 pytest.fail(f"{stmt.name}: unexpected {type(node).__name__}")

@@ -128,7 +128,7 @@ def test_errors_stay_inside_the_panel(monkeypatch):
     assert result.verdict == "ERROR" and "step" in result.error
 
 
-def test_namespace_arrays_used_when_they_fit():
+def test_namespace_arrays_used_only_when_every_one_fits():
     rng = np.random.default_rng(4)
     Z = rng.normal(size=(30, 3))
     namespace = {"Z": Z, "S": np.eye(5), "days": 30.0}  # S does not fit Z's n = 3
@@ -136,10 +136,51 @@ def test_namespace_arrays_used_when_they_fit():
     panel.use_namespace.value = True
     result = _press(panel)
     assert result.passed, result.summary()
-    assert result.sources["Z"] == "namespace" and result.sources["S"] == "sampled"
+    assert set(result.sources.values()) == {"sampled"}  # all or nothing
+    assert any("S in your namespace was not used" in note for note in result.notes)
+    assert any("no array of your namespace was used" in note for note in result.notes)
+    namespace["S"] = np.cov(Z.T) + np.eye(3)  # now every array fits
+    result = _press(panel)
+    assert result.passed, result.summary()
+    assert result.sources["Z"] == "namespace" and result.sources["S"] == "namespace"
     assert result.sizes["n"] == 3 and result.sizes["m"] == 30
     assert panel.size_inputs["n"].value == 3
-    assert any("S in your namespace was not used" in note for note in result.notes)
+    assert any(n.startswith("Taken from your namespace: Z, S, days") for n in result.notes)
+
+
+def test_numbers_show_significant_digits_and_exponents():
+    from gradwright.notebook.check_panel import number_text
+
+    panel = CheckPanel(derive(COVARIANCE, wrt="S"))
+    panel.method.value = "forward"
+    assert panel.step.text.value == "1.49e-08"  # not 1.4901161193847656e-08, cut
+    panel.method.value = "central"
+    assert panel.step.text.value == number_text(default_step("central"))
+    assert "e-06" in panel.step.text.value and len(panel.step.text.value) <= 8
+    panel.step.text.value = "abc"
+    assert "not a positive number" in panel.step.message.value
+    result = _press(panel)
+    assert result.verdict == "ERROR" and "step" in result.error
+
+
+def test_dims_out_of_range_are_refused_visibly_not_clamped():
+    panel = CheckPanel(derive(COVARIANCE, wrt="S"))
+    panel.size_inputs["n"].value = 100000
+    assert panel.size_inputs["n"].value == 100000  # not silently 500
+    assert "n = 100000 is more than" in panel.dims_message.value
+    result = _press(panel)
+    assert result.verdict == "ERROR" and "n = 100000" in result.error
+    panel.size_inputs["n"].value = 4
+    assert panel.dims_message.value == ""
+    assert _press(panel).passed
+
+
+def test_status_keeps_the_time_with_its_unit():
+    panel = CheckPanel(derive(COVARIANCE, wrt="S"))
+    _press(panel)
+    status = panel.status.value
+    tail = status[status.index("white-space:nowrap") :]
+    assert " s</span>" in tail and "run 1" in tail
 
 
 def test_plots_render_to_png():

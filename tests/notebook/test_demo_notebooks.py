@@ -49,6 +49,8 @@ def kernel_env(monkeypatch):
 def test_demo_runs_in_a_fresh_kernel(path, tmp_path, kernel_env):
     from nbclient import NotebookClient
 
+    tracked = {p: p.read_bytes() for p in path.parent.iterdir() if p.is_file()}
+
     def run():
         nb = nbformat.read(path, as_version=4)
         client = NotebookClient(
@@ -72,6 +74,9 @@ def test_demo_runs_in_a_fresh_kernel(path, tmp_path, kernel_env):
         slow = sorted(first + times, reverse=True)[:4]
         assert elapsed < TIME_LIMIT, f"{path.name} took {elapsed:.1f} s; slowest cells: {slow}"
 
+    # running a demo writes into the kernel's directory (a temp dir), never into the repository
+    after = {p: p.read_bytes() for p in path.parent.iterdir() if p.is_file()}
+    assert after == tracked, sorted(str(p) for p in set(after) ^ set(tracked))
     outputs = [o for c in nb.cells if c.cell_type == "code" for o in c.outputs]
     errors = [o for o in outputs if o.output_type == "error"]
     assert not errors, f"{errors[0].ename}: {errors[0].evalue}" if errors else ""

@@ -8,7 +8,13 @@ from IPython.utils.capture import capture_output
 from nbhelpers import COVARIANCE
 
 from gradwright import identities
-from gradwright.notebook.identity_panel import ANY_FAMILY, IdentityPanel, identity_html
+from gradwright.notebook.identity_panel import (
+    ANY_FAMILY,
+    RESULT_LIMIT,
+    IdentityPanel,
+    identities_used,
+    identity_html,
+)
 
 
 def _quiet(action):
@@ -67,9 +73,43 @@ def test_applicable_toggle_lists_matches_for_the_target():
     assert not panel.applicable.disabled and "nll" in panel.applicable.description
     _quiet(lambda: setattr(panel.applicable, "value", True))
     assert "apply to nll" in panel.count.value
-    ids = {i.id for i in panel.shown}
+    ids = {i.id for r in panel.results for i in r[:1]}
     expected = {m.identity.id for m in identities.applicable(d.text)}
-    assert ids <= expected or ids == expected
+    used = {i.id for i, _rule in identities_used(d)}
+    assert ids == expected | used
+    # the rules the derivation applied are there: it rearranged under the trace
+    assert "trace-cyclic-two" in used and "differential-of-logdet" in used
+    _quiet(lambda: setattr(panel.search, "value", "trace cyclic"))
+    assert panel.shown and all("cyclic" in i.id for i in panel.shown)
+
+
+def test_no_words_lists_everything_a_page_at_a_time():
+    panel, _ = _quiet(lambda: IdentityPanel(""))
+    everything = identities.all()
+    assert len(panel.results) == len(everything) > RESULT_LIMIT
+    assert [i.id for i in panel.shown] == [i.id for i in everything[:RESULT_LIMIT]]
+    assert f"1&ndash;{RESULT_LIMIT} of {len(everything)}" in panel.count.value
+    assert panel.previous.disabled and not panel.next.disabled
+    _quiet(lambda: panel.next.click())
+    assert [i.id for i in panel.shown] == [
+        i.id for i in everything[RESULT_LIMIT : 2 * RESULT_LIMIT]
+    ]
+    assert not panel.previous.disabled
+    _quiet(lambda: panel.turn(10_000))
+    assert panel.next.disabled and panel.shown == everything[panel.page * RESULT_LIMIT :]
+    _quiet(lambda: setattr(panel.search, "value", "trace"))
+    assert panel.page == 0  # a new search starts on its first page
+
+
+def test_identities_magic_without_words_lists_everything(shell):
+    from IPython.utils.capture import capture_output as capture
+
+    with capture() as cap:
+        shell.run_line_magic("identities", "")
+    shown = [o.data.get("text/plain", "") for o in cap.outputs]
+    assert any(identities.all()[0].id in text for text in shown), shown
+    doc = shell.find_line_magic("identities").__doc__
+    assert "every identity when no WORDS are given" in doc
 
 
 def test_toggle_disabled_without_a_derivation():

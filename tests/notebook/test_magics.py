@@ -30,7 +30,7 @@ def test_derive_shows_math_shape_table_names_and_panel(shell):
     cap = run_derive(shell, "U V", DEMAND)
     bundles = _bundles(cap)
     math = [b for b in bundles if "text/latex" in b]
-    tables = [b for b in bundles if "text/html" in b and "<table" in b["text/html"]]
+    tables = [b for b in bundles if "gradwright-shapes" in b.get("text/html", "")]
     panels = [b for b in bundles if WIDGET in b]
     assert len(math) == 1 and len(tables) == 1 and len(panels) == 1
     latex = math[0]["text/latex"]
@@ -154,7 +154,7 @@ def test_formula_error_is_one_usage_error_with_caret(shell):
     with pytest.raises(UsageError) as err:
         shell.run_cell_magic("derive", "U", bad)
     text = str(err.value)
-    assert text.startswith("line 3:") and "^" in text
+    assert text.startswith("line 4:") and "^" in text  # the cell's line 4: %%derive is line 1
     assert "Traceback" not in text
     # Through the cell path a user sees the one message, no traceback.
     with capture_output() as cap:

@@ -4,6 +4,7 @@
 """
 
 from . import indexing as _indexing  # noqa: F401  (registers its rules and adjoints)
+from . import matrix_rules  # noqa: F401  (registers the rules of matrix_functions)
 from .adjoint import ADJOINTS, adjoint
 from .kronecker import kronecker_form
 from .rules import RULES, differential, expand_once, has_pending, pending

@@ -105,9 +105,42 @@ def _kron(node, g):
     a, b = node.args
     if a.has_differential and b.has_differential:
         _nonlinear(node)
+    pq = _kron_factors(g)
+    if pq is not None and (pq[0].shape, pq[1].shape) == (
+        a.shape,
+        b.shape,
+    ):  # blocks of P ⊗ Q are P_ij Q: the contraction has a closed form
+        p, q = pq
+        if a.has_differential:
+            return [(a, E.mul(_inner(q, b), p))]
+        return [(b, E.mul(_inner(p, a), q))]
     if a.has_differential:
         return [(a, E.KronContract(g, b, a.shape[0], a.shape[1], "left"))]
     return [(b, E.KronContract(g, a, b.shape[0], b.shape[1], "right"))]
+
+
+def _inner(p, q):
+    """<P, Q> as tr(Pᵀ Q) for matrices (so that tr(B⁻¹ B) folds to a dim), else sum(P ∘ Q)."""
+    if E.is_matrix_shape(p.shape):
+        return E.trace(E.matmul(E.transpose(p), q))
+    return E.summation(E.mul(p, q))
+
+
+def _kron_factors(g):
+    """(P, Q) with g = P ⊗ Q, seen through inverses and transposes; None otherwise."""
+    t = type(g)
+    if t is E.Kron:
+        return g.args
+    if t is E.Mul and g.scalar_factors and len(g.array_factors) == 1:
+        inner = _kron_factors(g.array_factors[0])
+        if inner is not None:
+            return E.mul(*g.scalar_factors, inner[0]), inner[1]
+    if t in (E.Inverse, E.Transpose):
+        inner = _kron_factors(g.args[0])
+        if inner is not None:
+            f = E.inverse if t is E.Inverse else E.transpose
+            return f(inner[0]), f(inner[1])
+    return None
 
 
 @adjoint_rule(E.KronContract)

@@ -103,6 +103,9 @@ def _rule(node, J, var):
         inv = E.inverse(a)
         op = inv if c is None else E.kron(E.Identity(c), inv)
         return E.matmul(op, J(b))
+    operator = getattr(node, "kronecker_operator", None)  # node families in their own modules
+    if operator is not None:
+        return E.matmul(operator(), J(node.args[-1]))
     raise NotSupportedError(
         f"not supported yet: a compact Kronecker form through {t.__name__.lower()} "
         "(the dense Jacobian and the JVP/VJP functions are available)"

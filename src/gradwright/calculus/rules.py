@@ -16,7 +16,7 @@ DiffFn = Callable[[E.Expr], E.Expr]
 
 
 class Rule(NamedTuple):
-    name: str  # shown beside the step
+    name: str | Callable[[E.Expr], str]  # shown beside the step
     structural: bool  # linear bookkeeping (sum, constant multiple ...), merged into the next step
     apply: Callable[[E.Expr, DiffFn], E.Expr]
 
@@ -312,7 +312,7 @@ def expand_once(e: E.Expr, wrt: frozenset) -> tuple[E.Expr, list[str], bool]:
                     f"not supported yet: the differential of {type(inner).__name__}"
                 )
             mapping[node] = r.apply(inner, lambda c: pending(c, wrt))
-            name = r.name
+            name = r.name(inner) if callable(r.name) else r.name  # a name may depend on the node
             if type(inner) is E.Named:
                 name = f"definition of {inner.name}"
             if type(inner) is E.Func:

@@ -1,6 +1,7 @@
 """Closed-form stationary points: solve 'gradient = 0' when the gradient is affine in X
-(A X = C, X B = C, scalar multiples), directly or after multiplying by X on both sides when X
-enters only through its inverse (the Gaussian covariance case).
+(A X = C, X B = C, A X + X B = C as a Sylvester equation, scalar multiples), directly or
+after multiplying by X on both sides when X enters only through its inverse (the Gaussian
+covariance case).
 """
 
 from __future__ import annotations
@@ -8,6 +9,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 from .. import expr as E
+from .. import matrix_functions as M
 from ..errors import NotSupportedError
 from ..printing import latex, symbol_latex, text
 from ..printing import numpy_code as C
@@ -89,7 +91,13 @@ def _split(term: E.Expr, x: E.Symbol):
     if len(idx) != 1 or fs[idx[0]] != x:
         return None
     i = idx[0]
-    return E.mul(*scalars) if scalars else E.ONE, fs[:i], fs[i + 1 :]
+    before, after = fs[:i], fs[i + 1 :]
+    # a chain like (1ᵀ1) x: the factors beside x multiply to a scalar, a coefficient
+    if before and E.matmul(*before).is_scalar:
+        scalars, before = [*scalars, E.matmul(*before)], ()
+    if after and E.matmul(*after).is_scalar:
+        scalars, after = [*scalars, E.matmul(*after)], ()
+    return E.mul(*scalars) if scalars else E.ONE, before, after
 
 
 def _solve_affine(h: E.Expr, x: E.Symbol) -> E.Expr:
@@ -118,10 +126,33 @@ def _solve_affine(h: E.Expr, x: E.Symbol) -> E.Expr:
         m = E.add(*(E.mul(s, E.matmul(*b)) for s, _, b in parts))
         k = _common_factor(m)
         return simplify(E.matmul(_divide(E.neg(c), k), E.inverse(simplify(_divide(m, k)))))
+    if all(not a or not b for _, a, b in parts):
+        return _solve_sylvester_type(parts, c, x)
     raise NotSupportedError(
         "not supported yet: a closed form for A X B + C = 0 with factors on both sides "
-        "(a Sylvester-type equation)"
+        "of one term (a generalized Sylvester equation)"
     )
+
+
+def _solve_sylvester_type(parts, c: E.Expr, x: E.Symbol) -> E.Expr:
+    """M₁ X + X M₂ + C = 0, terms with factors on the left or on the right only: X solves a
+    Sylvester equation, a continuous Lyapunov equation when M₂ = M₁ᵀ and C is symmetric."""
+    left = [E.mul(s, E.matmul(*a)) for s, a, _ in parts if a]
+    right = [E.mul(s, E.matmul(*b)) for s, _, b in parts if b]
+    plain = [s for s, a, b in parts if not a and not b]
+    if plain:
+        left.append(E.mul(E.add(*plain), E.Identity(x.shape[0])))
+    m1 = simplify(E.add(*left)) if left else E.Zero(x.shape)
+    m2 = simplify(E.add(*right)) if right else E.Zero(x.shape)
+    rhs = simplify(E.neg(c))
+    if E.is_symmetric(x):
+        # over symmetric X the condition is sym(M₁ X + X M₂ + C) = 0, which is
+        # M X + X Mᵀ = -sym(C) with M = (M₁ + M₂ᵀ)/2: a continuous Lyapunov equation
+        m = simplify(E.mul(E.Const(E.Fraction(1, 2)), E.add(m1, E.transpose(m2))))
+        return M.SolveContinuousLyapunov(m, simplify(E.sym_part(rhs)))
+    if m2 == simplify(E.transpose(m1)) and E.is_symmetric(rhs):
+        return M.SolveContinuousLyapunov(m1, rhs)
+    return M.SolveSylvester(m1, m2, rhs)
 
 
 def _divide(e: E.Expr, k: E.Const) -> E.Expr:
@@ -163,7 +194,27 @@ def stationary_point(derivation, var: str) -> StationaryPoint:
                 f"{var} G {var} = 0 is affine, and {var} is invertible",
                 derivation,
             )
+        inverse = _through_inverse(g, x, derivation)
+        if inverse is not None:
+            return inverse
     raise NotSupportedError(
         f"not supported yet: a closed form for the stationary point in {var} (the gradient is "
         "not affine in it); use the gradient with an optimizer"
+    )
+
+
+def _through_inverse(g: E.Expr, x: E.Symbol, derivation):
+    """X enters the gradient only through inv(X), affinely (the Gaussian precision case):
+    solve for Y = inv(X), then X = inv(Y)."""
+    name = "_inverse_of_" + x.name
+    y = E.Symbol(name, x.shape, frozenset(x.structure & {"symmetric", "square"}))
+    h = simplify(expand(E.substitute(g, {E.inverse(x): y})))
+    if x.name in h.symbols or name not in h.symbols or not _is_affine(h, name):
+        return None
+    y_star = _solve_affine(h, y)
+    return StationaryPoint(
+        x.name,
+        simplify(E.inverse(y_star)),
+        f"the gradient is affine in inv({x.name}); solved for inv({x.name}) and inverted",
+        derivation,
     )

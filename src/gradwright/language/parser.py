@@ -1131,7 +1131,7 @@ class _Reader:
                 self.fail_node(f"{fname} is a symbol, not a function", node.func)
             close = difflib.get_close_matches(fname, list(FUNCTIONS), n=1)
             hint = f"; did you mean {close[0]}?" if close else ""
-            if not close and (hasattr(builtins, fname) or fname in _GENERATED_MODULE_NAMES):
+            if hasattr(builtins, fname) or fname in _GENERATED_MODULE_NAMES:
                 hint = (
                     f": Python's builtins {_not_in_language('are')}, only its own functions "
                     "(trace, det, inv, solve, exp, ...)"

@@ -26,6 +26,60 @@ __all__ = ["CheckPanel", "DEFAULT_SIZES"]
 DEFAULT_SIZES = (4, 3, 5, 2, 6, 7)
 ALL = "all variables"
 STATUS_CLASS = "gradwright-check-status"
+#: the largest dim size the check draws random arrays for (a dense Jacobian check is O(size²))
+MAX_DIM = 500
+LABEL_WIDTH = "72px"  # one width for every control's description, so that they line up
+
+
+def number_text(value: float) -> str:
+    """A number with three significant digits and its exponent: 6.06e-06, 0.0001, 1.49e-08."""
+    if not math.isfinite(value):
+        return str(value)
+    return f"{value:.3g}"
+
+
+class NumberBox:
+    """A text box holding a float shown with significant digits (a FloatText shows every digit
+    and hides the exponent); `.value` reads and writes the float, NaN when the text is not a
+    number, and an invalid entry is named in `message`."""
+
+    def __init__(self, w, value: float, description: str, width: str, tooltip: str = ""):
+        self.text = w.Text(
+            value=number_text(value),
+            description=description,
+            layout=w.Layout(width=width),
+            style={"description_width": LABEL_WIDTH},
+            tooltip=tooltip,
+            continuous_update=False,
+        )
+        self.description = description
+        self._exact = float(value)  # the value set from code, kept beyond the digits shown
+        self.message = w.HTML()
+        self.text.observe(self._validate, names="value")
+
+    @property
+    def value(self) -> float:
+        if self.text.value == number_text(self._exact):
+            return self._exact
+        try:
+            return float(self.text.value.strip())
+        except ValueError:
+            return float("nan")
+
+    @value.setter
+    def value(self, number: float) -> None:
+        self._exact = float(number)
+        self.text.value = number_text(self._exact)
+
+    def _validate(self, _change=None) -> None:
+        v = self.value
+        ok = math.isfinite(v) and v > 0
+        self.message.value = (
+            ""
+            if ok
+            else f"<span style='color:#b42318'>{html.escape(self.description)}: "
+            f"{html.escape(self.text.value)!s} is not a positive number</span>"
+        )
 
 
 def _plot_png(figure) -> bytes:
@@ -55,20 +109,22 @@ def sweep_figure(result: CheckResult):
             axes.loglog(steps, shown, styles.get(method, "-"), lw=width, label=label, color=color)
         axes.axvline(check.step, color="0.35", lw=0.8)
     axes.axhline(result.tolerance, color="tab:red", lw=0.8, ls=":", label="tolerance")
+    # labels outside the plotting area, so that no text sits on a curve
     axes.annotate(
         "chosen step",
-        (checks[0].step, 0.02),
+        (checks[0].step, 1.0),
         xycoords=("data", "axes fraction"),
-        fontsize=8,
-        rotation=90,
-        ha="right",
+        xytext=(0, 3),
+        textcoords="offset points",
+        fontsize=7,
+        ha="center",
         va="bottom",
         color="0.3",
     )
     axes.set_xlabel("step h")
     axes.set_ylabel("relative error")
-    axes.set_title("error against step size", fontsize=10)
-    axes.legend(fontsize=6, frameon=False, loc="best")
+    axes.set_title("error against step size", fontsize=10, pad=14)
+    axes.legend(fontsize=7, frameon=False, loc="upper left", bbox_to_anchor=(1.02, 1.0))
     axes.grid(True, which="major", alpha=0.3)
     return figure
 
@@ -104,11 +160,12 @@ def _status_html(result: CheckResult | None, run: int) -> str:
             "generated derivative with finite differences.</span>"
         )
     color = {"PASS": "#1a7f37", "FAIL": "#b42318", "ERROR": "#b42318"}[result.verdict]
+    # the run number and time stay together on one line: no lone "s" after a wrap
     tail = f" &middot; run {run} &middot; {result.elapsed:.2f} s"
     return (
         f"<span style='color:{color};font-weight:600'>{html.escape(result.verdict)}</span> "
         f"<span>{html.escape(result.summary().split(': ', 1)[1])}</span>"
-        f"<span style='color:#777'>{tail}</span>"
+        f"<span style='color:#777;white-space:nowrap'>{tail}</span>"
     )
 
 
@@ -184,17 +241,19 @@ class CheckPanel:
         dims = [d for d in derivation.dims if not str(d).isdigit()]
         sizes = dict(sizes or {})
         narrow = w.Layout(width="150px")
+        # IntText, not a bounded box: a bounded box silently turns 100000 into its maximum
         self.size_inputs = {
-            dim: w.BoundedIntText(
+            dim: w.IntText(
                 value=int(sizes.get(dim, DEFAULT_SIZES[i % len(DEFAULT_SIZES)])),
-                min=1,
-                max=500,
                 description=str(dim),
                 layout=narrow,
                 style={"description_width": "40px"},
             )
             for i, dim in enumerate(dims)
         }
+        self.dims_message = w.HTML()
+        for box in self.size_inputs.values():
+            box.observe(self._sizes_changed, names="value")
         variables = list(derivation.variables)
         options = variables + ([ALL] if len(variables) > 1 else [])
         self.variable = w.Dropdown(
@@ -202,27 +261,30 @@ class CheckPanel:
             value=ALL if len(variables) > 1 else variables[0],
             description="check",
             layout=w.Layout(width="260px"),
+            style={"description_width": LABEL_WIDTH},
         )
         methods = [m for m in METHODS if m != "complex step" or self.complex_ok]
         if method not in methods:
             raise ValueError(f"method {method!r} is not available here; choose from {methods}")
-        self.method = w.ToggleButtons(options=methods, value=method, description="method")
+        self.method = w.ToggleButtons(options=methods, value=method)
         self.method.style.button_width = "110px"
-        self.step = w.FloatText(
-            value=default_step(method),
-            description="step",
-            layout=w.Layout(width="260px"),
+        self.step = NumberBox(
+            w,
+            default_step(method),
+            "step",
+            "200px",
             tooltip="relative step; h = step * max(1, rms of the variable)",
         )
-        self.tolerance = w.FloatText(
-            value=default_tolerance(method),
-            description="tolerance",
-            layout=w.Layout(width="220px"),
+        self.tolerance = NumberBox(w, default_tolerance(method), "tolerance", "200px")
+        self.seed = w.IntText(
+            value=int(seed),
+            description="seed",
+            layout=w.Layout(width="180px"),
+            style={"description_width": "40px"},
         )
-        self.seed = w.IntText(value=int(seed), description="seed", layout=w.Layout(width="180px"))
         self.use_namespace = w.Checkbox(
             value=bool(use_namespace and namespace is not None),
-            description="use arrays from my namespace when they fit",
+            description="use arrays from my namespace (only when every one fits)",
             disabled=namespace is None,
             indent=False,
             layout=w.Layout(width="auto"),
@@ -253,16 +315,26 @@ class CheckPanel:
         if sizes:
             rows.append(
                 w.HBox(
-                    [w.Label("dims", layout=w.Layout(width="60px")), *sizes],
+                    [w.Label("dims", layout=w.Layout(width=LABEL_WIDTH)), *sizes],
                     layout=w.Layout(flex_flow="row wrap"),
                 )
             )
+            rows.append(self.dims_message)
         rows += [
             w.HBox([self.variable, self.seed]),
-            self.method,
-            w.HBox([self.step, self.tolerance]),
+            w.HBox(
+                [w.Label("method", layout=w.Layout(width=LABEL_WIDTH)), self.method],
+                layout=w.Layout(align_items="center"),
+            ),
+            w.HBox(
+                [self.step.text, self.tolerance.text, self.step.message, self.tolerance.message],
+                layout=w.Layout(flex_flow="row wrap", align_items="center"),
+            ),
             self.use_namespace,
-            w.HBox([self.button, self.status], layout=w.Layout(align_items="center")),
+            w.HBox(
+                [self.button, self.status],
+                layout=w.Layout(align_items="center", flex_flow="row wrap"),
+            ),
             self.output,
         ]
         box = w.VBox(
@@ -281,6 +353,27 @@ class CheckPanel:
         return bundle
 
     # -- wiring -------------------------------------------------------------------------
+    def _size_problems(self) -> list[str]:
+        problems = []
+        for dim, box in self.size_inputs.items():
+            size = int(box.value)
+            if size < 1:
+                problems.append(f"{dim} = {size} is not a size: dims are at least 1")
+            elif size > MAX_DIM:
+                problems.append(
+                    f"{dim} = {size} is more than the check draws ({MAX_DIM}); it was not "
+                    "changed, choose a smaller size"
+                )
+        return problems
+
+    def _sizes_changed(self, _change=None) -> None:
+        problems = self._size_problems()
+        self.dims_message.value = (
+            "<span style='color:#b42318'>" + html.escape("; ".join(problems)) + "</span>"
+            if problems
+            else ""
+        )
+
     def _method_changed(self, change):
         self.step.value = default_step(change["new"])
         self.tolerance.value = default_tolerance(change["new"])
@@ -288,14 +381,20 @@ class CheckPanel:
     def _inputs(self):
         d = self.derivation
         names = list(d.arguments())
+        problems = self._size_problems()
+        if problems:
+            raise ValueError("dims: " + "; ".join(problems))
         sizes = {dim: int(box.value) for dim, box in self.size_inputs.items()}
         taken, sources, refused = {}, {}, {}
         if self.use_namespace.value and self.namespace is not None:
             taken, bound, refused = fit_namespace(d, self.namespace, names)
-            sizes.update(bound)
-            for dim, size in bound.items():
-                if dim in self.size_inputs:
-                    self.size_inputs[dim].value = size
+            if refused:  # all or nothing: a mix of your arrays and unrelated sizes misleads
+                taken = {}
+            else:
+                sizes.update(bound)
+                for dim, size in bound.items():
+                    if dim in self.size_inputs:
+                        self.size_inputs[dim].value = size
         drawn = d.sample_inputs(sizes=sizes, seed=int(self.seed.value))
         arrays = {}
         for name in names:
@@ -371,6 +470,23 @@ class CheckPanel:
         )
         for name, reason in refused.items():
             result.notes.append(f"{name} in your namespace was not used: it {reason}.")
+        if refused:
+            result.notes.append(
+                "So no array of your namespace was used: every input was drawn at random "
+                "(the namespace is used only when every array found there fits)."
+            )
+        elif self.use_namespace.value and self.namespace is not None:
+            mine = [n for n, where in sources.items() if where == "namespace"]
+            result.notes.append(
+                "Taken from your namespace: "
+                + (", ".join(mine) if mine else "nothing")
+                + "; drawn at random: "
+                + (
+                    ", ".join(n for n, where in sources.items() if where != "namespace")
+                    or "nothing"
+                )
+                + "."
+            )
         return result
 
     def _show_plots(self, result: CheckResult) -> None:

@@ -5,11 +5,14 @@ Pure NumPy (no widgets, no plotting), so that the comparison is testable on its 
 
 from __future__ import annotations
 
+import inspect
 import math
 import time
 from dataclasses import dataclass, field
 
 import numpy as np
+
+from ..matrix_checks import derivative_notes
 
 __all__ = [
     "METHODS",
@@ -258,7 +261,8 @@ class _Evaluator:
         if method == "complex step":
             # the generated functions refuse complex arrays for real-declared symbols; the
             # complex step is the one place where a complex input is meant
-            flag = self.function.__globals__.get("_GW_COMPLEX_STEP")
+            inner = inspect.unwrap(self.function)  # the generated function behind wrappers
+            flag = getattr(inner, "__globals__", {}).get("_GW_COMPLEX_STEP")
             if flag is not None:
                 flag.append(True)
             try:
@@ -335,6 +339,8 @@ def run_check(
     except Exception as err:  # shown in the panel, never raised through it
         result.error = f"{type(err).__name__}: {err}"
     result.elapsed = time.perf_counter() - started
+    # said whether or not the check went through: it explains failures near such points
+    result.notes.extend(derivative_notes(derivation.expr, arrays))
     if result.error is None:
         for check in result.checks:
             tiny = [abs(a) for _, a, _, _ in check.directional]

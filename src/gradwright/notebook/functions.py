@@ -28,6 +28,12 @@ class Injected:
 
 def _named(fn, name: str, positional, keywords, doc: str):
     def wrapper(*args, **kwargs):
+        if len(args) > len(positional):  # name the function the user called, and the fix
+            shown = ", ".join([*positional, *(f"{k}=..." for k in keywords)])
+            raise TypeError(
+                f"{name}() got {len(args)} arrays by position: pass arrays by "
+                f"keyword: {name}({shown})"
+            )
         return fn(*args, **kwargs)
 
     wrapper.__name__ = wrapper.__qualname__ = name

@@ -9,7 +9,64 @@ import html
 __all__ = ["IdentityPanel", "identity_html"]
 
 ANY_FAMILY = "every family"
-RESULT_LIMIT = 12
+RESULT_LIMIT = 12  # identities per page
+
+#: the catalogue identities behind each rule name a derivation shows (a rule the table does not
+#: list is looked up by its words)
+RULE_IDENTITIES = {
+    "rearrange under the trace": ("trace-cyclic-two", "trace-cyclic-three", "trace-of-transpose"),
+    "log-determinant rule": ("differential-of-logdet",),
+    "determinant rule": ("differential-of-determinant",),
+    "inverse rule": ("differential-of-inverse",),
+    "solve rule": ("differential-of-solve",),
+    "product rule": ("differential-of-product",),
+    "trace is linear": ("differential-of-trace",),
+    "transpose is linear": ("differential-of-transpose",),
+    "Kronecker product rule": ("differential-of-kronecker",),
+    "vectorize": ("vec-triple-product",),
+    "norm rule": ("differential-of-euclidean-norm",),
+    "diag is linear": ("differential-of-diag",),
+    "log-sum-exp rule": ("gradient-of-logsumexp",),
+}
+#: rule names that are bookkeeping, with no identity behind them
+_PLAIN_RULES = {
+    "write d in front", "collect terms", "read off the gradient", "read off the Jacobian",
+    "sum rule", "constant multiple", "definition", "differential of a variable",
+    "collect the coefficient of each differential", "constants have zero differential",
+    "sum of entries is linear",
+}  # fmt: skip
+
+
+def rules_used(derivation) -> list[str]:
+    """The rule names of the derivation's steps, split at "; ", in order, each once."""
+    names: list[str] = []
+    for step in getattr(derivation, "steps", ()):
+        for part in (step.rule or "").split("; "):
+            head = part.split(":")[0].strip()
+            if head and head not in names and not head.startswith(("definition of", "keep the")):
+                names.append(head)
+    return names
+
+
+def identities_used(derivation) -> list[tuple[object, str]]:
+    """(identity, rule name) for the rules the derivation applied, catalogue records only."""
+    catalogue = _catalogue()
+    known = {i.id: i for i in catalogue.all()}
+    out: list = []
+    seen: set = set()
+    for rule in rules_used(derivation):
+        if rule in _PLAIN_RULES or rule.startswith(("symmetric part", "read off")):
+            continue
+        ids = RULE_IDENTITIES.get(rule)
+        if ids is None:  # e.g. "chain rule for tanh": the differential of that function
+            words = rule.replace("chain rule for", "differential").replace(" rule", "")
+            hits = catalogue.search_with_scores(words, limit=1)
+            ids = tuple(i.id for i, score in hits if score >= 15)
+        for identity_id in ids:
+            if identity_id in known and identity_id not in seen:
+                seen.add(identity_id)
+                out.append((known[identity_id], rule))
+    return out
 
 
 def _catalogue():
@@ -112,6 +169,12 @@ class IdentityPanel:
             icon="filter",
         )
         self.count = w.HTML()
+        self.page = 0
+        self.results: list = []  # every (identity, note) of the current controls
+        self.previous = w.Button(description="previous", icon="chevron-left", disabled=True)
+        self.next = w.Button(description="next", icon="chevron-right", disabled=True)
+        self.previous.on_click(lambda _b: self.turn(-1))
+        self.next.on_click(lambda _b: self.turn(1))
         self.output = w.Output()
         for control in (self.search, self.family, self.applicable):
             control.observe(self._changed, names="value")
@@ -119,7 +182,10 @@ class IdentityPanel:
             [
                 w.HTML("<b>Identity catalogue</b>"),
                 w.HBox([self.search, self.family]),
-                w.HBox([self.applicable, self.count], layout=w.Layout(align_items="center")),
+                w.HBox(
+                    [self.applicable, self.previous, self.next, self.count],
+                    layout=w.Layout(align_items="center", flex_flow="row wrap"),
+                ),
                 self.output,
             ],
             layout=w.Layout(border="1px solid #d0d7de", padding="6px 10px", margin="6px 0"),
@@ -134,7 +200,14 @@ class IdentityPanel:
         return bundle
 
     def _changed(self, _change):
+        self.page = 0
         self.refresh()
+
+    def turn(self, pages: int) -> None:
+        """Show another page of the results (12 a page)."""
+        last = max(0, (len(self.results) - 1) // RESULT_LIMIT)
+        self.page = min(last, max(0, self.page + pages))
+        self._show()
 
     def _results(self):
         """(identity, note html) pairs for the current controls."""
@@ -144,8 +217,19 @@ class IdentityPanel:
             matches = catalogue.applicable(self._target_for_matching())
             words = self.search.value.lower().split()
             out = []
+            listed = set()
+            for identity, rule in identities_used(self.derivation):
+                if tags and not set(tags) & set(identity.tags or ()):
+                    continue
+                blob = f"{identity.title} {identity.id} {' '.join(identity.tags or ())}".lower()
+                if words and not all(word in blob for word in words):
+                    continue
+                listed.add(identity.id)
+                out.append((identity, f"used by the derivation ({html.escape(rule)})"))
             for match in matches:
                 identity = match.identity
+                if identity.id in listed:
+                    continue
                 if tags and not set(tags) & set(identity.tags or ()):
                     continue
                 blob = f"{identity.title} {identity.id} {' '.join(identity.tags or ())}".lower()
@@ -157,49 +241,59 @@ class IdentityPanel:
                 if rewritten:
                     note += f": {html.escape(_math(rewritten))}"
                 out.append((identity, note))
+                listed.add(identity.id)
             return out
-        found = catalogue.search(self.search.value, tags=tags, limit=RESULT_LIMIT)
+        everything = catalogue.all()
+        if not self.search.value.strip():  # no words: the whole catalogue (or the family)
+            found = [i for i in everything if not tags or set(tags) & set(i.tags or ())]
+        else:
+            found = catalogue.search(self.search.value, tags=tags, limit=len(everything))
         return [(identity, "") for identity in found]
 
     def _target_for_matching(self):
         return self.derivation.text
 
     def refresh(self) -> None:
-        """Recompute the results and show them; errors are shown in the panel."""
+        """Recompute the results and show their current page; errors are shown in the panel."""
+        self.error = ""
+        if self.message:
+            self.results = []
+        else:
+            try:
+                self.results = self._results()
+            except Exception as err:
+                self.results = []
+                self.error = f"{type(err).__name__}: {err}"
+        self._show()
+
+    def _show(self) -> None:
         import ipywidgets as w
         from IPython.display import display
 
         def HTML(value):  # math in results is typeset by the widget itself
             return w.HTMLMath(value=value)
 
+        start = self.page * RESULT_LIMIT
+        page = self.results[start : start + RESULT_LIMIT]
+        self.shown = [identity for identity, _ in page]
+        total = len(self.results)
+        self.previous.disabled = self.page == 0
+        self.next.disabled = start + RESULT_LIMIT >= total
         with self.output:
             self.output.clear_output(wait=True)
-            if self.message:
-                display(HTML(f"<p style='color:#b42318'>{html.escape(self.message)}</p>"))
-                self.shown = []
-                return
-            try:
-                results = self._results()
-            except Exception as err:
-                self.shown = []
+            if self.message or self.error:
                 self.count.value = ""
-                display(
-                    HTML(
-                        f"<p style='color:#b42318'>{html.escape(type(err).__name__)}: "
-                        f"{html.escape(str(err))}</p>"
-                    )
-                )
+                text = self.message or self.error
+                display(HTML(f"<p style='color:#b42318'>{html.escape(text)}</p>"))
                 return
-            self.shown = [identity for identity, _ in results]
+            span = f"{start + 1}&ndash;{start + len(page)} of {total}" if page else "0 shown"
             if self.applicable.value:
-                self.count.value = f"{len(results)} apply to {html.escape(self.derivation.target)}"
-            else:
-                self.count.value = f"{len(results)} shown" + (
-                    f" (at most {RESULT_LIMIT}; refine the search)"
-                    if len(results) >= RESULT_LIMIT
-                    else ""
+                self.count.value = f"{total} apply to {html.escape(self.derivation.target)}" + (
+                    f" &middot; {span}" if total > RESULT_LIMIT else ""
                 )
-            if not results:
+            else:
+                self.count.value = span if total else "0 shown"
+            if not page:
                 display(
                     HTML(
                         "<p style='color:#555'>Nothing matches; "
@@ -207,4 +301,4 @@ class IdentityPanel:
                     )
                 )
                 return
-            display(HTML("".join(identity_html(i, note) for i, note in results)))
+            display(HTML("".join(identity_html(i, note) for i, note in page)))

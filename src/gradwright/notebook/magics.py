@@ -7,6 +7,7 @@ Load with ``%load_ext gradwright``.
 from __future__ import annotations
 
 import keyword
+import textwrap
 
 from IPython.core.error import UsageError
 from IPython.core.magic import Magics, cell_magic, line_magic, magics_class
@@ -29,6 +30,30 @@ def _kind_of(value) -> str:
     if callable(value):
         return "a function"
     return f"{'an' if kind[:1].lower() in 'aeiou' else 'a'} {kind}"
+
+
+def _in_cell(err):
+    """The error with its line counted from the cell: the %%derive line is the cell's line 1."""
+    if not err.line:
+        return err
+    return type(err)(
+        err.reason,
+        line=err.line + 1,
+        column=err.column,
+        source_line=err.source_line,
+        width=err.width,
+    )
+
+
+def _jacobian_note(derivation, name: str) -> str:
+    shape = ", ".join(str(d) for d in derivation.target_shape)
+    kind = "a vector" if len(derivation.target_shape) == 1 else "a matrix"
+    return (
+        f"Note: the target {derivation.target} is {kind} of shape ({shape}"
+        f"{',' if len(derivation.target_shape) == 1 else ''}), not a scalar, so its derivative is "
+        f"a Jacobian: jvp_{name}, vjp_{name} and jacobian_{name} are injected instead of a "
+        "gradient."
+    )
 
 
 def _check_name(name: str) -> None:
@@ -106,7 +131,7 @@ class GradwrightMagics(Magics):
         try:
             plan = injections(derivation, name)
         except FormulaError as err:  # e.g. a product the code generator does not support yet
-            raise UsageError(str(err)) from None
+            raise UsageError(str(_in_cell(err))) from None
         panel = None
         if not args.no_check:
             from .check_panel import CheckPanel
@@ -132,6 +157,8 @@ class GradwrightMagics(Magics):
             self._injected[item.name] = item.value
         self.last_derivation = derivation
 
+        if not derivation.is_scalar:
+            print(textwrap.fill(_jacobian_note(derivation, name), width=88))
         print("Injected:")
         for item in plan:
             print(f"  {item.describes}")
@@ -148,7 +175,7 @@ class GradwrightMagics(Magics):
         try:
             return derive(cell, wrt=variables)
         except FormulaError as err:
-            raise UsageError(str(err)) from None
+            raise UsageError(str(_in_cell(err))) from None
 
     def _refuse_clobbering(self, names, force: bool) -> None:
         user_ns = self.shell.user_ns
@@ -175,8 +202,9 @@ class GradwrightMagics(Magics):
     @argument("--family", "-f", metavar="FAMILY", help="show only this family (a tag)")
     @line_magic
     def identities(self, line):
-        """Open the identity catalogue, searched for WORDS, with the identities that apply to
-        the last %%derive's target a toggle away."""
+        """Open the identity catalogue: every identity when no WORDS are given, else those
+        matching WORDS; the identities that apply to the last %%derive's target are a toggle
+        away."""
         args = parse_argstring(self.identities, line)
         from .identity_panel import IdentityPanel
 
@@ -186,6 +214,47 @@ class GradwrightMagics(Magics):
         from IPython.display import display
 
         display(panel)
+
+
+_LANGUAGE_SUMMARY = """
+The formula language (the cell body; NumPy syntax, read but never executed):
+
+  X: (n, p)              declaration: a name, its shape in dims; () or `scalar` is a scalar
+  S: (p, p) spd          structure words: symmetric spd diagonal positive orthogonal
+  R = X @ B - Y          a definition, usable below; the last definition is the target
+  f = trace(R.T @ solve(S, R)) + lam * sum(B**2)
+
+  @ matrix product, .T transpose, + - and * / ** entrywise (NumPy broadcasting);
+{functions}
+  Lines count from the cell: the %%derive line is line 1. `# ...` starts a comment.
+"""
+
+
+def _help(doc: str, summary: str = "") -> str:
+    """The generated help without the reST `::` marker, the usage lines flush left."""
+    head, sep, rest = doc.partition("::\n\n")
+    if sep and not head.strip():
+        usage, _, body = rest.partition("\n\n")
+        doc = "Usage:\n" + usage + "\n\n" + body
+    return doc.rstrip() + "\n" + summary
+
+
+def _function_names() -> str:
+    from gradwright.language import parser
+    from gradwright.language.registry import CALLS
+
+    names = set(parser.FUNCTIONS) | set(CALLS)
+    listed = ", ".join(sorted(n for n in names if not n.startswith("_"))) + "."
+    return textwrap.fill(
+        "functions: " + listed, width=92, initial_indent="  ", subsequent_indent="    "
+    )
+
+
+GradwrightMagics.derive.__doc__ = _help(
+    GradwrightMagics.derive.__doc__ or "",
+    _LANGUAGE_SUMMARY.format(functions=_function_names()),
+)
+GradwrightMagics.identities.__doc__ = _help(GradwrightMagics.identities.__doc__ or "")
 
 
 def load_ipython_extension(ipython) -> None:

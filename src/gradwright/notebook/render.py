@@ -7,10 +7,12 @@ the terminal alike.
 from __future__ import annotations
 
 import html
+import re
 
 __all__ = [
     "SHOW_CHOICES",
     "derivation_bundle",
+    "derivation_html",
     "derivation_latex",
     "derivation_text",
     "shape_rows",
@@ -40,26 +42,50 @@ def latex_text(words: str) -> str:
 
 
 RULE_WIDTH = 44  # characters per line of a rule's words before it wraps
+#: the widest math line of a step in the notebook, in ems (an 1,100 px output keeps the rule
+#: column beside it)
+MATH_BUDGET = 38.0
 
 
 def _wrap(words: str, width: int = RULE_WIDTH) -> list[str]:
-    lines, current = [], ""
-    for piece in words.replace("; ", ";\0").split("\0"):
-        for word in piece.split(" "):
-            candidate = f"{current} {word}".strip() if current else word
-            if len(candidate) > width and current:
-                lines.append(current)
-                current = word
-            else:
-                current = candidate
-    if current:
-        lines.append(current)
-    return lines
+    """Lines of LaTeX for a rule: words wrap between words, a formula is never split."""
+    from gradwright.printing.layout import rule_segments, text_escape
+
+    units: list[tuple[str, str, int]] = []  # (LaTeX, kind, visible length)
+    for kind, value in rule_segments(words):
+        if kind == "math":
+            units.append((value, "math", len(value) // 2))
+            continue
+        for word in re.findall(r"\S+\s*", value):
+            units.append((word, "text", len(word)))
+    lines: list[list[tuple[str, str]]] = [[]]
+    used = 0
+    for latex, kind, size in units:
+        if used + size > width and lines[-1]:
+            lines.append([])
+            used = 0
+        lines[-1].append((latex, kind))
+        used += size
+    out = []
+    for line in lines:
+        parts, words_run = [], ""
+        for latex, kind in line:
+            if kind == "text":
+                words_run += latex
+                continue
+            if words_run:
+                parts.append(f"\\text{{{text_escape(words_run)}}}")
+                words_run = ""
+            parts.append(latex)
+        if words_run.strip():
+            parts.append(f"\\text{{{text_escape(words_run.rstrip())}}}")
+        out.append(" ".join(parts))
+    return [line for line in out if line]
 
 
 def rule_latex(words: str) -> str:
     """A rule's plain words as small grey text, wrapped onto stacked lines when long."""
-    lines = [f"\\text{{{latex_text(line)}}}" for line in _wrap(words)]
+    lines = _wrap(words)
     body = (
         lines[0] if len(lines) == 1 else "\\begin{array}{l}" + " \\\\ ".join(lines) + "\\end{array}"
     )
@@ -109,17 +135,69 @@ def derivation_latex(derivation, show: str = "steps") -> str:
     previous_lhs = None
     for step in _steps(derivation, show):
         lhs = step.lhs_latex or ""
-        rhs = _strip_lhs(_call(step.latex), lhs)
+        first, *rest = _rhs_lines(step, lhs)
         if previous_kind is not None and step.kind != previous_kind:
             lines.append(r"\\[-0.4em]")  # a little air between the differential and the result
         shown_lhs = "" if lhs == previous_lhs else lhs
         rule = f"&& {rule_latex(step.rule)}" if step.rule else ""
-        lines.append(f"{shown_lhs} &= {rhs} {rule}".rstrip())
+        lines.append(f"{shown_lhs} &= {first} {rule}".rstrip())
+        lines.extend(rf"&\qquad {more}" for more in rest)
         previous_kind, previous_lhs = step.kind, lhs
     if not derivation.is_scalar and show != "none":
         lines.append(f"&& {rule_latex(_jacobian_note(derivation))}")
     body = " \\\\\n".join(line for line in lines if line != r"\\[-0.4em]")
     return "$$\n\\begin{aligned}\n" + body + "\n\\end{aligned}\n$$"
+
+
+def _rhs_lines(step, lhs: str) -> list[str]:
+    """The step's right-hand side, broken at operators when wider than the output allows."""
+    expr = getattr(step, "expr", None)
+    if expr is not None:
+        from gradwright.printing.layout import broken_lines
+
+        return broken_lines(expr, MATH_BUDGET)
+    return [_strip_lhs(_call(step.latex), lhs)]
+
+
+_CELL = "padding:1px 0.3em;vertical-align:baseline;"
+_RULE_CELL = (
+    "padding:1px 0 1px 1.8em;color:#666;font-size:85%;min-width:12em;max-width:22em;"
+    "white-space:normal;overflow-wrap:normal;word-break:normal;text-align:left;"
+)
+
+
+def derivation_html(derivation, show: str = "steps") -> str:
+    """The derivation as an HTML table: the left-hand side, the math (broken at operators, one
+    row per line) and the rule in its own column, wrapping between words."""
+    from gradwright.printing.layout import rule_html
+
+    rows = []
+    previous_lhs = None
+    for step in _steps(derivation, show):
+        lhs = step.lhs_latex or ""
+        lines = _rhs_lines(step, lhs)
+        shown = "" if lhs == previous_lhs else lhs
+        rule = rule_html(step.rule) if step.rule else ""
+        for i, line in enumerate(lines):
+            left = f"\\(\\displaystyle {html.escape(shown)}\\)" if i == 0 and shown else ""
+            math = ("= " if i == 0 else r"\qquad ") + line
+            rows.append(
+                f"<tr><td style='{_CELL}text-align:right;white-space:nowrap'>{left}</td>"
+                f"<td class='gradwright-step-math' style='{_CELL}text-align:left;"
+                f"white-space:nowrap'>\\(\\displaystyle {html.escape(math)}\\)</td>"
+                f"<td class='gradwright-rule' style='{_RULE_CELL}'>{rule if i == 0 else ''}</td>"
+                "</tr>"
+            )
+        previous_lhs = lhs
+    if not derivation.is_scalar and show != "none":
+        rows.append(
+            f"<tr><td></td><td colspan='2' class='gradwright-rule' style='{_RULE_CELL}"
+            f"padding-left:0.3em'>{html.escape(_jacobian_note(derivation))}</td></tr>"
+        )
+    return (
+        "<div class='gradwright-derivation' style='max-width:100%'>"
+        "<table style='border-collapse:collapse;margin:0.3em 0'>" + "".join(rows) + "</table></div>"
+    )
 
 
 def derivation_text(derivation, show: str = "steps") -> str:
@@ -159,13 +237,16 @@ def derivation_bundle(derivation, show: str = "steps") -> dict:
     try:
         latex = derivation_latex(derivation, show)
         text = derivation_text(derivation, show)
+        page = derivation_html(derivation, show)
     except (AttributeError, TypeError):
         # A derivation without the step layout we expect still shows the core's own rendering.
         latex = derivation.latex()
         if "$" not in latex:
             latex = f"$$\n{latex}\n$$"
         text = derivation.text()
-    return {"text/latex": latex, "text/plain": text}
+        return {"text/latex": latex, "text/plain": text}
+    # JupyterLab shows the HTML table (rules wrap in their own column); other front ends the math
+    return {"text/html": page, "text/latex": latex, "text/plain": text}
 
 
 # --- shape table --------------------------------------------------------------------------
@@ -226,7 +307,7 @@ def shape_rows(derivation) -> list[dict]:
                 {
                     "symbol": f"gradient of {target} wrt {var}",
                     "shape": _shape_text(info.shape),
-                    "structure": " ".join(info.structure),
+                    "structure": _gradient_structure(info.structure),
                     "role": "result",
                 }
             )
@@ -242,6 +323,18 @@ def shape_rows(derivation) -> list[dict]:
                 }
             )
     return rows
+
+
+def _gradient_structure(words) -> str:
+    """What the gradient keeps of its variable's structure: the gradient lives in the tangent
+    space (symmetric or diagonal matrices), it is not itself positive definite, positive or
+    orthogonal."""
+    words = set(words)
+    if "diagonal" in words:
+        return "diagonal"
+    if words & {"symmetric", "spd"}:
+        return "symmetric"
+    return ""
 
 
 def shape_table_bundle(derivation) -> dict:

@@ -118,3 +118,72 @@ def tree_size(e: E.Expr, limit: int) -> int:
         if type(x) is not E.Named:
             stack.extend((c, False) for c in x.children if id(c) not in memo)
     return memo[id(e)]
+
+
+#: a rational whose denominator is at most this (and not a power of ten) prints as a fraction
+SMALL_DENOMINATOR = 100
+
+
+def is_small_fraction(v: Fraction) -> bool:
+    """True for 1/2, 2/3, 7/12: shown as a fraction (N/2), not as 0.5N or 0.6666666666666666."""
+    q = v.denominator
+    if q == 1 or q > SMALL_DENOMINATOR or abs(v.numerator) > 10 * SMALL_DENOMINATOR:
+        return False
+    while q % 10 == 0:
+        q //= 10
+    return q != 1
+
+
+def fraction_parts(v: Fraction) -> tuple[str, int] | None:
+    """(numerator text, denominator) for a positive constant best shown as a fraction:
+    1/2 -> ("1", 2), 2/3 -> ("2", 3), 1.5e-7/7 -> ("1.5e-7", 7); None for a plain decimal.
+
+    >>> fraction_parts(Fraction(3, 140000000))
+    ('1.5e-7', 7)
+    """
+    if is_small_fraction(v):
+        return str(v.numerator), v.denominator
+    q = v.denominator
+    while q % 2 == 0:
+        q //= 2
+    while q % 5 == 0:
+        q //= 5
+    if q == 1 or q > 10 * SMALL_DENOMINATOR:
+        return None
+    top = v * q  # a terminating decimal: the number as it was written, before the division
+    text = number_text(top)
+    return (text, q) if Fraction(text) == top else None
+
+
+def number_text(v: Fraction) -> str:
+    """A non-negative constant as a decimal with no more digits than it needs.
+
+    Exact when the decimal terminates within 15 significant digits; otherwise the shortest
+    text that reads back as the same float (what NumPy computes from the written literals),
+    so that 0.9189385332046727 * 3 shows 2.756815599614018, never a 17-digit fraction.
+
+    >>> number_text(Fraction(27568155996140181, 10000000000000000))
+    '2.756815599614018'
+    """
+    if v.denominator == 1:
+        return str(v.numerator)
+    exact = fraction_text(v)
+    if exact is None:
+        text = f"{float(v):.15g}"
+        exact = text if Fraction(text) == v else None
+    text = exact if exact is not None else repr(float(v))
+    if exact is None and significant_digits(text) > 16:  # a float holds about 16 digits
+        text = f"{float(v):.16g}"
+    if "e" in text or "E" in text:
+        mantissa, _, exponent = text.lower().partition("e")
+        return f"{mantissa}e{int(exponent)}"
+    return text
+
+
+def significant_digits(number: str) -> int:
+    """Significant digits of a decimal literal: '0.00120' -> 3, '2.5e-3' -> 2, '300' -> 1."""
+    mantissa = number.lower().split("e")[0].replace("-", "").replace("+", "")
+    digits = mantissa.replace(".", "").lstrip("0")
+    if "." not in mantissa:
+        digits = digits.rstrip("0")
+    return max(1, len(digits))

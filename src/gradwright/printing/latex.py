@@ -6,7 +6,10 @@ import re
 
 from .. import expr as E
 from . import precedence as P
-from .base import Printer, fraction_text, join_terms, split_numerator
+from .base import Printer, fraction_parts, join_terms, number_text, split_numerator
+
+#: between the factors of a product, so that `days S` or `dS S` never read as one word
+THIN = r"\,"
 
 GREEK = {
     "alpha", "beta", "gamma", "delta", "epsilon", "zeta", "eta", "theta", "iota", "kappa",
@@ -47,6 +50,27 @@ def symbol_latex(name: str) -> str:
     return rf"\mathrm{{{name}}}"
 
 
+def latex_number(text: str) -> str:
+    """1.5e-7 -> 1.5 \\times 10^{-7}; plain decimals unchanged."""
+    mantissa, e, exponent = text.partition("e")
+    if not e:
+        return text
+    power = f"10^{{{int(exponent)}}}"
+    return power if mantissa == "1" else rf"{mantissa} \times {power}"
+
+
+def _reads_as_number(e: E.Expr) -> bool:
+    """A dim's size, pi, tr(I) or sum(1): written in front of the other factors."""
+    if type(e).__name__ in ("SizeOf", "Pi"):
+        return True
+    return type(e) in (E.Trace, E.Sum) and type(e.args[0]) in (E.Identity, E.Ones)
+
+
+def differential_latex(name: str) -> str:
+    """d X, with a thin space before a multi-letter name (d days, not "ddays")."""
+    return r"\mathrm{d}" + (THIN if name.startswith(r"\mathrm") else "") + name
+
+
 def dim_latex(d) -> str:
     return r" \cdot ".join(str(d).split("*"))
 
@@ -80,22 +104,22 @@ class LatexPrinter(Printer):
         return symbol_latex(e.name)
 
     def _print_Differential(self, e):
-        return r"\mathrm{d}" + symbol_latex(e.symbol.name)
+        return differential_latex(symbol_latex(e.symbol.name))
 
     def _print_D(self, e):
         inner = e.args[0]
         if type(inner) in (E.Symbol, E.Named):
-            return r"\mathrm{d}" + self._print(inner)
+            return differential_latex(self._print(inner))
         return r"\mathrm{d}\left(" + self._print(inner) + r"\right)"
 
     def _print_Const(self, e):
         v = e.value
         if v < 0:
             return "-" + self._print(E.Const(-v))
-        text = fraction_text(v)
-        if text is not None and (v.denominator == 1 or len(text) <= 6):
-            return text
-        return rf"\frac{{{v.numerator}}}{{{v.denominator}}}"
+        parts = fraction_parts(v)
+        if parts is not None:
+            return rf"\frac{{{latex_number(parts[0])}}}{{{parts[1]}}}"
+        return latex_number(number_text(v))
 
     def _print_Identity(self, e):
         return f"I_{{{dim_latex(e.args[0])}}}" if self.settings["dim_subscripts"] else "I"
@@ -103,9 +127,12 @@ class LatexPrinter(Printer):
     def _print_Ones(self, e):
         r, c = e.shape
         if not self.settings["dim_subscripts"]:
-            return r"\mathbf{1}" if c is None or r is None else r"\mathbf{1}\mathbf{1}^{\top}"
+            if r is None and c is not None:  # a row of ones: the transpose is part of the shape
+                return r"\mathbf{1}^{\top}"
+            return r"\mathbf{1}" if c is None else r"\mathbf{1}\mathbf{1}^{\top}"
         dims = [dim_latex(d) for d in (r, c) if d is not None]
-        return r"\mathbf{1}_{" + r" \times ".join(dims) + "}"
+        text = r"\mathbf{1}_{" + r" \times ".join(dims) + "}"
+        return text + r"^{\top}" if r is None and c is not None else text
 
     def _print_Zero(self, e):
         return r"\mathbf{0}"
@@ -132,42 +159,45 @@ class LatexPrinter(Printer):
             return "-" + inner
         scalars_den = [d for d in den if d.is_scalar]
         arrays_den = [d for d in den if not d.is_scalar]
-        parts = []
-        if coef != 1 and (num or scalars_den):
-            ct = self._print(E.Const(coef))
-            parts.append(ct)
         scal = [f for f in num if f.is_scalar]
         arrs = [f for f in num if not f.is_scalar]
+        top: list[str] = []  # scalar factors above the fraction bar
+        bottom = [self.paren(d, P.PRODUCT + 1) for d in scalars_den]
+        parts = fraction_parts(coef) if coef > 0 else None
+        if parts is not None:  # N/2 reads as \frac{N}{2}, never 0.5 N
+            if parts[0] != "1":
+                top.append(latex_number(parts[0]))
+            bottom.insert(0, str(parts[1]))
+        elif coef != 1:
+            top.append(latex_number(number_text(coef)))
+        scal.sort(key=lambda f: 0 if _reads_as_number(f) else 1)  # n log det S, not log det S n
+        after: list[str] = []  # \frac{n}{2} tr(...): only numbers and names over a plain divisor
         for f in scal:
-            parts.append(self.paren(f, P.PRODUCT + 1 if type(f) is not E.MatMul else P.PRODUCT))
+            text = self.paren(f, P.PRODUCT + 1 if type(f) is not E.MatMul else P.PRODUCT)
+            simple = _reads_as_number(f) or type(f) in (E.Symbol, E.Named)
+            (top if simple or scalars_den else after).append(text)
+        had = []
         if arrs or arrays_den:
             level = P.PRODUCT + 1 if len(arrs) + len(arrays_den) > 1 else P.PRODUCT
             had = [self.paren(f, level) for f in arrs]
             for d in arrays_den:
                 had.append(self.paren(d, P.POSTFIX + 1) + r"^{\circ -1}")
-            joined = r" \odot ".join(had)
-            parts.append(joined)
-        body = " ".join(parts) if parts else self._print(E.Const(coef))
-        if coef != 1 and not (num or scalars_den):
-            body = self._print(E.Const(coef)) + " " + body
-        if scalars_den:
-            den_text = " ".join(self.paren(d, P.PRODUCT + 1) for d in scalars_den)
-            if not arrs and not arrays_den:
-                top = " ".join(parts) if parts else "1"
-                if coef != 1 and top == self._print(E.Const(coef)):
-                    pass
-                return rf"\frac{{{top}}}{{{den_text}}}"
-            return rf"\frac{{1}}{{{den_text}}} {body}"
-        return body
+        hadamard = r" \circ ".join(had)
+        rest = after + ([hadamard] if hadamard else [])
+        if bottom:
+            frac = rf"\frac{{{THIN.join(top) or '1'}}}{{{THIN.join(bottom)}}}"
+            return THIN.join([frac, *rest])
+        return THIN.join(top + rest) or "1"
 
     def _print_MatMul(self, e):
-        return " ".join(self.paren(f, P.PRODUCT + 1) for f in e.args)
+        return THIN.join(self.paren(f, P.PRODUCT + 1) for f in e.args)
 
     def _print_Kron(self, e):
         return rf"{self.paren(e.args[0], P.KRON + 1)} \otimes {self.paren(e.args[1], P.KRON + 1)}"
 
     def _print_Solve(self, e):
-        return f"{self.paren(e.args[0], P.POSTFIX + 1)}^{{-1}} {self.paren(e.args[1], P.PRODUCT)}"
+        a, b = e.args
+        return f"{self.paren(a, P.POSTFIX + 1)}^{{-1}}{THIN}{self.paren(b, P.PRODUCT)}"
 
     # --- postfix -----------------------------------------------------------------------------
 
@@ -265,11 +295,16 @@ class LatexPrinter(Printer):
         return rf"{self.paren(a, P.ATOM)}_{{[{sep.join(sels)}]}}"
 
     def _print_KronContract(self, e):
+        # G_{[ij]} is the (i, j) block of G, sized like the other factor: the blocks of
+        # G paired with B (left factor) or summed with the weights A_ij (right factor)
         g, other, _r, _c, side = e.args
-        dot = rf"\cdot \otimes {self.paren(other, P.KRON + 1)}"
-        if side == "right":
-            dot = rf"{self.paren(other, P.KRON + 1)} \otimes \cdot"
-        return rf"\left\langle {self._print(g)},\, {dot} \right\rangle"
+        blocks = rf"{self.paren(g, P.POSTFIX + 1)}_{{[ij]}}"
+        if side == "left":
+            pairing = rf"\operatorname{{tr}}\left({blocks}^{{\top}}{THIN}"
+            pairing += rf"{self.paren(other, P.PRODUCT + 1)}\right)"
+            return rf"\left[{pairing}\right]_{{i,j}}"
+        weight = rf"{self.paren(other, P.POSTFIX + 1)}_{{ij}}"
+        return rf"\sum_{{i,j}} {weight}{THIN}{blocks}"
 
 
 def latex(e: E.Expr, **settings) -> str:

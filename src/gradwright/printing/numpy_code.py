@@ -9,433 +9,28 @@ from __future__ import annotations
 
 import keyword
 from dataclasses import dataclass, field
-from types import SimpleNamespace
 
 from .. import expr as E
 from . import precedence as P
 from .base import split_numerator
+from .calltime import (
+    CallTimeChoice,
+    chain_candidates,
+    chain_dims,
+    choice_text,
+    poly_text,
+    tree_cost,
+)
+from .checks import check_code, finite_lines
+from .costmodel import (  # noqa: F401 - public names kept importable from here
+    MAX_DP_CHAIN,
+    CostModel,
+    guess_sizes,
+    lower,
+)
+from .runtime import FUNC_CODE, HELPERS  # noqa: F401
+from .structure import known_spd
 from .text import TextPrinter
-
-# ---------------------------------------------------------------------------------------------
-# runtime helpers (emitted into the generated module when used; plain NumPy/SciPy)
-# ---------------------------------------------------------------------------------------------
-
-HELPERS = {
-    "_gw_check": '''
-class _GwDims(dict):
-    """Dim sizes bound by the arguments; a size no argument fixes is a clear error."""
-
-    def __missing__(self, key):
-        raise ValueError(
-            f"the size of dim {key} is not known from the arrays passed (none of them has "
-            f"{key} as a dim of its own)"
-        )
-
-
-# set only while the finite-difference check evaluates the value function at a complex step
-_GW_COMPLEX_STEP = []
-
-
-def _gw_check(specs):
-    """Validate the arguments; returns the arrays and the dims they bind."""
-    dims, owner, out, products = _GwDims(), {}, [], []
-    for name, value, spec in specs:
-        if isinstance(value, (str, bytes)) or value is None:
-            raise TypeError(f"{name} must be a numeric array, got {type(value).__name__}")
-        try:
-            a = np.asarray(value)
-        except Exception as err:
-            raise TypeError(
-                f"{name} must be a numeric array; NumPy cannot read it ({err})"
-            ) from None
-        if a.dtype.kind not in "biufc":
-            got = f"dtype {a.dtype}" if isinstance(value, np.ndarray) else type(value).__name__
-            raise TypeError(f"{name} must be a numeric array, got {got}")
-        if a.dtype.kind == "c" and not _GW_COMPLEX_STEP:
-            if " " in name:  # a direction or cotangent, not a declared symbol
-                raise TypeError(
-                    f"{name} is a complex array, but the block is real: pass a real array"
-                )
-            shown = "(" + ", ".join(map(str, spec)) + ("," if len(spec) == 1 else "") + ")"
-            raise TypeError(
-                f"{name} is a complex array, but {name} is declared real: the derivative of a "
-                f"real formula is wrong for complex input. Declare it `{name}: {shown} complex` "
-                f"or pass a real array (for example {name}.real)"
-            )
-        if a.dtype.kind in "bi":
-            a = a.astype(float)
-        if a.ndim != len(spec):
-            want = ("a scalar", "a vector", "a matrix")[len(spec)]
-            shown = "(" + ", ".join(map(str, spec)) + ("," if len(spec) == 1 else "") + ")"
-            axes = "1 axis" if a.ndim == 1 else f"{a.ndim} axes"
-            raise ValueError(f"{name} should be {want} {shown} but has {axes}, shape {a.shape}")
-        for axis, (d, n) in enumerate(zip(spec, a.shape)):
-            word = ("rows", "columns")[axis] if len(spec) == 2 else "entries"
-            if isinstance(d, int):
-                if n != d:
-                    raise ValueError(f"{name} has {n} {word} but its declaration says {d}")
-            elif "*" in d:
-                products.append((name, word, d, n))
-            elif d in dims:
-                if dims[d] != n:
-                    other, other_word = owner[d]
-                    raise ValueError(
-                        f"{name} has {n} {word} but {other} has {d} = {dims[d]}"
-                        + (f" {other_word}" if other_word != word else "")
-                    )
-            else:
-                dims[d], owner[d] = n, (name, word)
-        out.append(a)
-    for _ in range(len(products)):  # after every plain dim is bound; a lone unknown is inferred
-        pending = []
-        for name, word, d, n in products:
-            want, unknown = 1, []
-            for part in d.split("*"):
-                if part.isdigit() or part in dims:
-                    want *= int(part) if part.isdigit() else dims[part]
-                else:
-                    unknown.append(part)
-            if not unknown:
-                if n != want:
-                    raise ValueError(f"{name} has {n} {word} but {d} = {want}")
-            elif len(unknown) == 1 and n % want == 0:
-                dims[unknown[0]], owner[unknown[0]] = n // want, (name, word)
-            else:
-                pending.append((name, word, d, n))
-        if len(pending) == len(products):
-            break  # what stays unknown is reported where a size is needed
-        products = pending
-    return out, dims
-''',
-    "_gw_unit": """
-def _gw_unit(n, i):
-    # the unit vector of length n with its 1 at NumPy position i (the adjoint of x[i])
-    out = np.zeros(n)
-    out[i] = 1.0
-    return out
-""",
-    "_gw_place": """
-def _gw_place(g, n, lo, hi, axis):
-    # zeros of length n along axis with g at positions lo:hi (the adjoint of slicing)
-    g = np.asarray(g)
-    axis = axis if g.ndim == 2 else 0
-    shape = list(g.shape)
-    shape[axis] = n
-    out = np.zeros(shape, dtype=np.result_type(g.dtype, float))
-    where = [slice(None)] * g.ndim
-    where[axis] = slice(lo, hi)
-    out[tuple(where)] = g
-    return out
-""",
-    "_gw_finite": """
-def _gw_finite(value, what):
-    bad = np.size(value) - np.count_nonzero(np.isfinite(value))
-    if bad:
-        where = "" if np.ndim(value) == 0 else f" in {bad} of {np.size(value)} entries"
-        warnings.warn(f"{what} is not finite (inf or nan){where}", RuntimeWarning, stacklevel=3)
-    return value
-""",
-    "_gw_solve": """
-def _gw_solve(a, b, label):
-    try:
-        return np.linalg.solve(a, b)
-    except np.linalg.LinAlgError:
-        who = label[:-2] if label.endswith(".T") and label[:-2].isidentifier() else label
-        raise np.linalg.LinAlgError(
-            f"{who} is singular: the formula or its derivative solves with it (inv, solve, "
-            "logdet), which needs an invertible matrix"
-        ) from None
-""",
-    "_gw_inv": """
-def _gw_inv(a, label):
-    try:
-        return np.linalg.inv(a)
-    except np.linalg.LinAlgError:
-        who = label[:-2] if label.endswith(".T") and label[:-2].isidentifier() else label
-        raise np.linalg.LinAlgError(
-            f"{who} is singular: the formula or its derivative needs its inverse (inv, solve, "
-            "det, logdet), which does not exist"
-        ) from None
-""",
-    "_gw_logdet": """
-def _gw_logdet(a, label):
-    sign, value = np.linalg.slogdet(a)
-    if sign == 0:
-        who = label[:-2] if label.endswith(".T") and label[:-2].isidentifier() else label
-        raise np.linalg.LinAlgError(
-            f"{who} is singular (determinant 0): logdet needs an invertible matrix"
-        )
-    return value
-""",
-    "_gw_cho": """
-def _gw_cho(a, label):
-    # cho_factor reads one triangle only: an unsymmetric input would give a silently wrong
-    # answer; the tolerance is relative to the largest entry (common practice)
-    if np.max(np.abs(a - a.T), initial=0.0) > 1e-8 * max(1.0, np.max(np.abs(a), initial=0.0)):
-        raise ValueError(f"{label} is declared spd but is not symmetric")
-    try:
-        return cho_factor(a)
-    except np.linalg.LinAlgError:
-        raise np.linalg.LinAlgError(
-            f"{label} is not positive definite (it is declared spd)"
-        ) from None
-""",
-    "_gw_adjugate": """
-def _gw_adjugate(a):
-    \"\"\"adj(A) = det(A) inv(A); through the SVD where A is singular, where it still exists.\"\"\"
-    d = np.linalg.det(a)
-    if d != 0 and np.isfinite(d):
-        try:
-            return d * np.linalg.inv(a)
-        except np.linalg.LinAlgError:
-            pass
-    u, s, vt = np.linalg.svd(a)
-    others = np.array([np.prod(np.delete(s, i)) for i in range(s.shape[0])])
-    return np.linalg.det(u) * np.linalg.det(vt) * ((vt.T * others) @ u.T)
-""",
-    "_gw_sigmoid": """
-def _gw_sigmoid(x):
-    return 0.5 * (1.0 + np.tanh(0.5 * x))
-""",
-    "_gw_logsumexp": """
-def _gw_logsumexp(a):
-    m = np.max(np.real(a))
-    return m + np.log(np.sum(np.exp(a - m)))
-""",
-    "_gw_softmax": """
-def _gw_softmax(x):
-    z = np.exp(x - np.max(np.real(x)))
-    return z / np.sum(z)
-""",
-    "_gw_commutation": """
-def _gw_commutation(m, n):
-    k = np.zeros((m * n, m * n))
-    for i in range(m):
-        for j in range(n):
-            k[j + i * n, i + j * m] = 1.0
-    return k
-""",
-    "_gw_kron_contract": """
-def _gw_kron_contract(g, other, rows, cols, side):
-    \"\"\"The adjoint of one factor of a Kronecker product (g and other are 2-D).\"\"\"
-    if side == "left":
-        p, q = other.shape
-        return np.einsum("ikjl,kl->ij", g.reshape(rows, p, cols, q), other)
-    m, n = other.shape
-    return np.einsum("ikjl,ij->kl", g.reshape(m, rows, n, cols), other)
-""",
-}
-
-FUNC_CODE = {
-    "exp": "np.exp",
-    "log": "np.log",
-    "sqrt": "np.sqrt",
-    "sin": "np.sin",
-    "cos": "np.cos",
-    "tanh": "np.tanh",
-    "sigmoid": "_gw_sigmoid",
-    "softplus": "np.logaddexp(0.0, {})",
-}
-
-# ---------------------------------------------------------------------------------------------
-# cost model
-# ---------------------------------------------------------------------------------------------
-
-
-#: longest product chain ordered by dynamic programming (cubic in the length)
-MAX_DP_CHAIN = 16
-
-
-class CostModel:
-    """Flop estimates from guessed dim sizes (user hints first)."""
-
-    def __init__(self, sizes: dict):
-        self.sizes = sizes
-        self._orders: dict = {}
-        self._flops: dict = {}
-
-    def dim(self, d) -> float:
-        if d is None:
-            return 1.0
-        out = float(d.coef)
-        for n in d.names:
-            out *= self.sizes.get(n, 1000.0)
-        return out
-
-    def size(self, shape) -> float:
-        return self.dim(shape[0]) * self.dim(shape[1])
-
-    def chain_order(self, factors):
-        """Optimal parenthesization (dynamic programming, memoized on the dims); returns
-        (cost, tree). Chains longer than MAX_DP_CHAIN are multiplied left to right."""
-        dims = (self.dim(factors[0].shape[0]),) + tuple(self.dim(f.shape[1]) for f in factors)
-        hit = self._orders.get(dims)
-        if hit is None:
-            hit = self._chain_order(dims)
-            self._orders[dims] = hit
-        return hit
-
-    def _chain_order(self, dims):
-        n = len(dims) - 1
-        if n > MAX_DP_CHAIN:
-            cost, tree = 0.0, 0
-            for j in range(1, n):
-                cost += dims[0] * dims[j] * dims[j + 1]
-                tree = (tree, j)
-            return cost, tree
-        cost = [[0.0] * n for _ in range(n)]
-        split = [[0] * n for _ in range(n)]
-        for length in range(2, n + 1):
-            for i in range(n - length + 1):
-                j = i + length - 1
-                best, arg = None, i
-                for k in range(i, j):
-                    c = cost[i][k] + cost[k + 1][j] + dims[i] * dims[k + 1] * dims[j + 1]
-                    if best is None or c < best:
-                        best, arg = c, k
-                cost[i][j], split[i][j] = best, arg
-
-        def tree(i, j):
-            if i == j:
-                return i
-            k = split[i][j]
-            return (tree(i, k), tree(k + 1, j))
-
-        return cost[0][n - 1], tree(0, n - 1)
-
-    def flops(self, e: E.Expr, free=frozenset(), memo=None) -> float:
-        if memo is None:
-            key = (e, free)
-            hit = self._flops.get(key)
-            if hit is None:
-                hit = self.flops(e, free, {})
-                self._flops[key] = hit
-            return hit
-        if e in free:
-            return 0.0
-        if e in memo:
-            return 0.0  # computed once, shared
-        t = type(e)
-        if t in (E.Symbol, E.Const, E.Differential):
-            return 0.0
-        sub = sum(self.flops(c, free, memo) for c in e.children)
-        memo[e] = True
-        if t is E.MatMul:
-            return sub + self.chain_order(e.args)[0]
-        if t in (E.Solve, E.Inverse, E.Det, E.LogDet):
-            n = self.dim(e.args[0].shape[0])
-            k = self.dim(e.args[1].shape[1]) if t is E.Solve else (n if t is E.Inverse else 0)
-            return sub + n**3 / 3 + n * n * k
-        return sub + self.size(e.shape) + sum(self.size(c.shape) for c in e.children)
-
-
-def guess_sizes(e: E.Expr, hints: dict | None = None) -> dict:
-    """Dims that only ever appear as contracted inner dims of products (ranks, feature counts)
-    are guessed small, the inner dim of a Gram product A.T @ A (observations) large, every
-    other named dim in between. User hints override (common practice: low-rank factors are much
-    smaller than the data dims, and samples outnumber features)."""
-    outer, inner = set(), set()
-    for node in E.walk(e):
-        for d in node.shape:
-            if d is not None:
-                outer.update(d.names)
-    for node in E.walk(e):
-        if type(node) is E.MatMul:
-            for a in node.args[:-1]:
-                if a.shape[1] is not None:
-                    inner.update(a.shape[1].names)
-    result_dims = set()
-    for node in E.walk(e):
-        if type(node) is not E.Symbol:
-            for d in node.shape:
-                if d is not None:
-                    result_dims.update(d.names)
-    gram = set()  # the inner dim of A.T @ A counts observations: usually the largest
-    for node in E.walk(e):
-        if type(node) is E.MatMul:
-            for a, b in zip(node.args, node.args[1:]):
-                if a == E.transpose(b) and a.shape[1] is not None:
-                    gram.update(a.shape[1].names)
-    sizes = {}
-    for name in outer | inner:
-        small = name in inner and not _appears_as_result(e, name)
-        sizes[name] = 10000.0 if name in gram else 30.0 if small else 1000.0
-    sizes.update({k: float(v) for k, v in (hints or {}).items()})
-    return sizes
-
-
-def _appears_as_result(e: E.Expr, name: str) -> bool:
-    for node in E.walk(e):
-        if type(node) is E.MatMul:
-            r, c = node.shape
-            if (r is not None and name in r.names) or (c is not None and name in c.names):
-                return True
-    return False
-
-
-# ---------------------------------------------------------------------------------------------
-# lowering: rewrites for computation (before CSE and printing)
-# ---------------------------------------------------------------------------------------------
-
-
-def lower(e: E.Expr, cost: CostModel, free=frozenset()) -> E.Expr:
-    """inv(A) @ B -> solve(A, B); distribute products over sums where the cost model says so."""
-    memo: dict = {}
-
-    def go(x: E.Expr) -> E.Expr:
-        hit = memo.get(x)
-        if hit is not None:
-            return hit
-        if type(x) is E.Named:
-            out = E.Named(x.name, go(x.body))
-        elif not x.children:
-            out = x
-        else:
-            new = [go(c) for c in x.children]
-            out = x if all(a is b for a, b in zip(new, x.children)) else E.rebuild_smart(x, new)
-            if type(out) is E.MatMul:
-                out = _distribute(out, cost, free, go)
-                if type(out) is E.MatMul:
-                    out = _solves(out)
-        memo[x] = out
-        return out
-
-    return go(e)
-
-
-def _unwrap(f: E.Expr) -> E.Expr:
-    return f.body if type(f) is E.Named else f
-
-
-def _distribute(m: E.MatMul, cost: CostModel, free, go) -> E.Expr:
-    fs = m.args
-    for i, f in enumerate(fs):
-        body = _unwrap(f)
-        if type(body) is not E.Add or f in free:
-            continue
-        factored = cost.flops(m, free)
-        # a scalar term of a broadcast sum is c * ones(shape) inside a product
-        parts = [E.mul(t, E.Ones(body.shape)) if t.is_scalar else t for t in body.args]
-        terms = [E.matmul(*fs[:i], t, *fs[i + 1 :]) for t in parts]
-        distributed = sum(cost.flops(t, free) for t in terms) + cost.size(m.shape) * len(terms)
-        if distributed < 0.8 * factored:
-            return go(E.add(*terms))
-    return m
-
-
-def _solves(m: E.MatMul) -> E.Expr:
-    fs = list(m.args)
-    # a trailing inverse: P inv(A) = solve(A.T, P.T).T
-    for i in range(len(fs) - 1, -1, -1):
-        if type(fs[i]) is E.Inverse and len(fs) > 1:
-            a = fs[i].args[0]
-            if i < len(fs) - 1:
-                rest = E.matmul(*fs[i + 1 :])
-                return E.matmul(*fs[:i], E.Solve(a, rest)) if i > 0 else E.Solve(a, rest)
-            left = E.matmul(*fs[:i])
-            return E.transpose(E.Solve(E.transpose(a), E.transpose(left)))
-    return m
-
 
 # ---------------------------------------------------------------------------------------------
 # printing with temporaries
@@ -460,6 +55,10 @@ class NumpyPrinter(TextPrinter):
         if name is not None:
             return name
         return super()._print(e)
+
+    def _print_CallTimeChoice(self, e):
+        own, dist, own_cost, dist_cost = e.args
+        return f"({self._print(dist)} if {dist_cost} < 0.8 * ({own_cost}) else {self._print(own)})"
 
     def use(self, helper: str):
         self.gen.helpers.add(helper)
@@ -493,17 +92,17 @@ class NumpyPrinter(TextPrinter):
         return repr(float(v))
 
     def _print_Identity(self, e):
-        return f"np.eye({self.dim(e.args[0])})"
+        return f"np.eye({self.dim(e.args[0])}, dtype=_dims.dtype)"
 
     def _print_Ones(self, e):
-        return f"np.ones({self.shape_tuple(e.shape)})"
+        return f"np.ones({self.shape_tuple(e.shape)}, dtype=_dims.dtype)"
 
     def _print_Zero(self, e):
-        return f"np.zeros({self.shape_tuple(e.shape)})"
+        return f"np.zeros({self.shape_tuple(e.shape)}, dtype=_dims.dtype)"
 
     def _print_Commutation(self, e):
         self.use("_gw_commutation")
-        return f"_gw_commutation({self.dim(e.args[0])}, {self.dim(e.args[1])})"
+        return f"_gw_commutation({self.dim(e.args[0])}, {self.dim(e.args[1])}, _dims.dtype)"
 
     def _print_Mul(self, e):
         coef, num, den = split_numerator(e)
@@ -569,15 +168,19 @@ class NumpyPrinter(TextPrinter):
             return items[0][0]
         if len(items) == 2:
             return f"{self.wrap(items[0][0])} @ {self.wrap(items[1][0])}"
-        shapes = [SimpleNamespace(shape=shape) for _, shape, _ in items]
-        _, tree = self.gen.cost.chain_order(shapes)
+        shapes = [shape for _, shape, _ in items]
+        trees = chain_candidates(shapes, self.gen.cost)
 
         def emit(t):
             if isinstance(t, int):
                 return self.wrap(items[t][0])
             return f"({emit(t[0])} @ {emit(t[1])})"
 
-        out = emit(tree)
+        if len(trees) > 1:  # the order depends on the sizes: chosen at call time
+            texts = [emit(t)[1:-1] for t in trees]
+            costs = [poly_text(tree_cost(chain_dims(shapes), t)) for t in trees]
+            return f"({choice_text(texts, costs)})"
+        out = emit(trees[0])
         return out[1:-1] if out.startswith("(") and out.endswith(")") else out
 
     @staticmethod
@@ -639,21 +242,29 @@ class NumpyPrinter(TextPrinter):
 
     def _print_Sum(self, e):
         a = e.args[0]
-        if type(a) is E.Power and a.args[1] == E.Const(2) and self.gen.temps.get(a) is None:
+        if _is_square(a) and self.gen.temps.get(a) is None and not E.is_scalar_shape(a.shape):
             x = self._print(a.args[0])
-            sub = "ij,ij->" if E.is_matrix_shape(a.shape) else "i,i->"
-            return f'np.einsum("{sub}", {x}, {x})'  # no temporary for the squares
-        if type(a) is E.Mul and len(a.array_factors) == 2 and not a.scalar_factors:
+            if not E.is_matrix_shape(a.shape):
+                return f"{self.wrap(x)} @ {self.wrap(x)}"  # one BLAS dot, no temporary
+            return f'np.einsum("ij,ij->", {x}, {x})'  # no temporary for the squares
+        if (
+            type(a) is E.Mul
+            and len(a.array_factors) == 2
+            and not a.scalar_factors
+            and not E.is_scalar_shape(a.shape)
+        ):
             x, y = a.args
             if not any(type(f) is E.Power and type(f.args[1]) is E.Const and f.args[1].value < 0
                        for f in (x, y)):  # fmt: skip
-                sub = "ij,ij->" if E.is_matrix_shape(a.shape) else "i,i->"
-                return f'np.einsum("{sub}", {self._print(x)}, {self._print(y)})'
+                if not E.is_matrix_shape(a.shape):
+                    return f"{self.wrap(self._print(x))} @ {self.wrap(self._print(y))}"
+                return f'np.einsum("ij,ij->", {self._print(x)}, {self._print(y)})'
         return f"np.sum({self._print(a)})"
 
     def _spd_factor(self, a: E.Expr) -> str | None:
-        if E.is_spd(a) and self.gen.use_cholesky:
+        if known_spd(a) and self.gen.use_cholesky:
             self.use("_gw_cho")
+            self.use("_gw_cho_solve")
             return self.gen.cholesky_for(a, self)
         return None
 
@@ -669,7 +280,7 @@ class NumpyPrinter(TextPrinter):
         a = e.args[0]
         cho = self._spd_factor(a)
         if cho is not None:
-            return f"cho_solve({cho}, np.eye({self.dim(a.shape[0])}))"
+            return f"_gw_cho_solve({cho}, np.eye({self.dim(a.shape[0])}, dtype=_dims.dtype))"
         self.use("_gw_inv")
         return f"_gw_inv({self._print(a)}, {self.label(a)})"
 
@@ -677,7 +288,7 @@ class NumpyPrinter(TextPrinter):
         a, b = e.args
         cho = self._spd_factor(a)
         if cho is not None:
-            return f"cho_solve({cho}, {self._print(b)})"
+            return f"_gw_cho_solve({cho}, {self._print(b)})"
         self.use("_gw_solve")
         return f"_gw_solve({self._print(a)}, {self._print(b)}, {self.label(a)})"
 
@@ -818,6 +429,7 @@ class CodeGen:
         self.directions: dict = {}
         self.lines: list[str] = []
         self.cholesky: dict = {}
+        self.module_lines: list[str] = []
 
     def arg_name(self, name: str) -> str:
         if keyword.iskeyword(name) or name.startswith("_"):  # pragma: no cover - parser refuses
@@ -830,7 +442,9 @@ class CodeGen:
             name = f"_chol{len(self.cholesky)}"
             self.cholesky[a] = name
             self.uses_scipy = True
-            self.lines.append(f"    {name} = _gw_cho({printer._print(a)}, {printer.label(a)})")
+            declared = "" if E.is_spd(a) else ", False"
+            factor = f"_gw_cho({printer._print(a)}, {printer.label(a)}{declared})"
+            self.lines.append(f"    {name} = {factor}")
         return name
 
     def signature(self, direction: str | None) -> str:
@@ -850,22 +464,16 @@ class CodeGen:
             return f"({parts[0]},)"
         return "(" + ", ".join(parts) + ")"
 
-    def check_lines(self, direction) -> list[str]:
-        names = list(self.required)
-        specs = [f"({n!r}, {n}, {self.spec_of(self.symbols[n].shape)})" for n in names]
+    def check_lines(self, direction, fname: str = "f") -> list[str]:
+        """The argument checks of one function; their module-level cache goes to self.module."""
+        entries = [(n, n, self.spec_of(self.symbols[n].shape)) for n in self.required]
         if direction is not None:
             pname, _sym, shape = direction
-            specs.append(f"({_direction_label(direction)!r}, {pname}, {self.spec_of(shape)})")
-            names.append(pname)
-        if not specs:
-            return ["    _dims = {}"]
+            entries.append((_direction_label(direction), pname, self.spec_of(shape)))
         self.helpers.add("_gw_check")
-        targets = ", ".join(names) + ("," if len(names) == 1 else "")
-        return [
-            f"    ({targets}), _dims = _gw_check((",
-            *[f"        {s}," for s in specs],
-            "    ))",
-        ]
+        module_lines, body = check_code(fname, entries)
+        self.module_lines = module_lines
+        return body
 
     def function(self, spec: FunctionSpec) -> str:
         self.temps, self.lines, self.cholesky = {}, [], {}
@@ -877,7 +485,7 @@ class CodeGen:
                 self.directions = {sym: pname}
         head = [f"def {spec.name}({self.signature(direction[0] if direction else None)}):"]
         head.append(f'    """{spec.doc}"""')
-        head += self.check_lines(direction)
+        head += self.check_lines(direction, spec.name)
         exprs = [o.expr for o in spec.outputs]
         shared = _shared_nodes(exprs)
         counter = [0]
@@ -909,16 +517,14 @@ class CodeGen:
             emit(o.expr)
             text = printer._print(o.expr)
             self.lines.append(f"    {o.name} = {text}")
-            if not E.is_matrix_shape(o.shape) and not E.is_scalar_shape(o.shape):
-                pass
             self.helpers.add("_gw_finite")
-            self.lines.append(f"    _gw_finite({o.name}, {o.what!r})")
+            self.lines += finite_lines(o.name, o.shape, o.what)
         body = head + self.lines
         if spec.loop:
             body.append(spec.loop)
         body.append(f"    return {spec.returns}")
         self.directions = {}
-        return "\n".join(body)
+        return "\n".join([*self.module_lines, "", ""] * bool(self.module_lines) + body)
 
 
 def _direction_label(direction) -> str:
@@ -935,22 +541,34 @@ def _shared_nodes(exprs) -> set:
     visited: set = set()
     for e in exprs:
         count[e] = count.get(e, 0)
+    inside: set = set()  # below a call-time choice: computed only if its branch is taken
     while stack:
         x = stack.pop()
         if x in visited:
             continue
         visited.add(x)
+        if type(x) is CallTimeChoice:
+            inside.update(n for c in x.children for n in E.walk(c))
+            continue
         for c in x.children:
             count[c] = count.get(c, 0) + 1
             if c not in visited:
                 stack.append(c)
+        if type(x) is E.Sum and _is_square(x.args[0]) and not x.args[0].is_scalar:
+            # printed as a product with itself
+            base = x.args[0].args[0]
+            count[base] = count.get(base, 0) + 1
     out = set()
     for node, k in count.items():
         if _trivial(node):
             continue
-        if type(node) is E.Named or k > 1:
+        if type(node) is E.Named or k > 1 or node in inside:
             out.add(node)
     return out
+
+
+def _is_square(e: E.Expr) -> bool:
+    return type(e) is E.Power and e.args[1] == E.Const(2)
 
 
 def _trivial(node) -> bool:
@@ -965,10 +583,9 @@ def _trivial(node) -> bool:
 
 
 def module(header: str, functions: list[str], helpers: set, uses_scipy: bool) -> str:
-    """The whole generated module text (runs with NumPy, and SciPy for spd symbols)."""
-    lines = [header, "import warnings", "", "import numpy as np"]
-    if uses_scipy:
-        lines.append("from scipy.linalg import cho_factor, cho_solve")
+    """The whole generated module text (runs with NumPy; SciPy is imported on the first call
+    that factors an spd matrix)."""
+    lines = [header, "import cmath", "import warnings", "", "import numpy as np"]
     lines.append("")
     for name in sorted(helpers):
         lines.append(HELPERS[name].rstrip())
@@ -978,7 +595,8 @@ def module(header: str, functions: list[str], helpers: set, uses_scipy: bool) ->
         lines.append("")
         lines.append(f)
         lines.append("")
-        names.append(f[4 : f.index("(")])
+        at = f.index("def ") + 4
+        names.append(f[at : f.index("(", at)])
     # the dense Jacobian and Hessian loops call the products through this table, so that no
     # user symbol of the same name can shadow them
     lines.append("")

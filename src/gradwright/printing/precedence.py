@@ -48,13 +48,16 @@ def latex_precedence(e: E.Expr) -> int:
         return POSTFIX
     if t in (E.Sum, E.Trace) and type(e.args[0]) in (E.Ones, E.Identity):
         shape = e.args[0].shape
+        if t is E.Trace:  # tr(I_n) is n: only the rows count
+            shape = shape[:1]
         named = [d for d in shape if d is not None]
         return (
             PRODUCT
             if len(named) > 1 or any(len(d.names) + (d.coef != 1) > 1 for d in named)
             else ATOM
         )
-    return ATOM
+    own = getattr(e, "latex_precedence", None)  # node families printed in their own modules
+    return own if own is not None else ATOM
 
 
 def text_precedence(e: E.Expr) -> int:

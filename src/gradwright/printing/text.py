@@ -7,8 +7,9 @@ from . import precedence as P
 from .base import (
     Printer,
     chain_segments,
-    fraction_text,
+    fraction_parts,
     join_terms,
+    number_text,
     segment_shape,
     split_numerator,
 )
@@ -47,10 +48,12 @@ class TextPrinter(Printer):
 
     def _print_Const(self, e):
         v = e.value
-        text = fraction_text(v)
-        if text is not None:
-            return text
-        return f"{v.numerator}/{v.denominator}"
+        if v < 0:
+            return "-" + self._print_Const(E.Const(-v))
+        parts = fraction_parts(v)
+        if parts is not None:
+            return f"{parts[0]}/{parts[1]}"
+        return number_text(v)
 
     def dims(self, shape) -> list[str]:
         return [self.dim(d) for d in shape if d is not None]
@@ -79,14 +82,22 @@ class TextPrinter(Printer):
             rest = E.mul(E.Const(-coef), *num, *(E.power(d, E.Const(-1)) for d in den))
             return "-" + self.paren(rest, P.PRODUCT)
         parts = []
-        if coef != 1 or not num:
-            if coef.denominator != 1 and fraction_text(coef) is None:
-                parts.append(f"({coef.numerator}/{coef.denominator})")
+        over = None  # N / 2 as written, never 0.5 * N
+        split = fraction_parts(coef)
+        if split is not None and num:
+            if split[0] != "1":
+                parts.append(split[0])
+            over = str(split[1])
+        elif coef != 1 or not num:
+            if split is not None:
+                parts.append(f"({split[0]}/{split[1]})")
             else:
                 parts.append(self._print(E.Const(coef)))
         for f in num:
             parts.append(self.paren(f, P.PRODUCT + 1 if type(f) is not E.Power else P.PRODUCT))
         text = " * ".join(parts)
+        if over is not None:
+            text += " / " + over
         for d in den:
             text += " / " + self.paren(d, P.PRODUCT + 1)
         return text

@@ -1,0 +1,172 @@
+"""Argument checks of generated functions: a full check with clear messages, and a fast path.
+
+Every generated function first compares a key of its arguments (types, shapes and dtypes)
+with the key of the last call that passed the full check; on a match it reuses the dims that
+call bound, at the cost of one tuple comparison. Only calls whose arrays needed no conversion
+are remembered (exact `np.ndarray` of a real floating dtype, Python numbers for scalars), so a
+complex, integer, list or otherwise unusual argument always takes the full check and gets its
+message or conversion there. Example of the generated text:
+
+    try:
+        _hit = _gw_last_value[0]
+        if (type(X), X.shape, X.dtype, type(w), w.shape, w.dtype) != _hit[0]:
+            raise LookupError
+        _dims = _hit[1]
+    except (AttributeError, LookupError):
+        (X, w), _dims = _gw_check((...), _gw_last_value)
+"""
+
+from __future__ import annotations
+
+CHECK_HELPER = '''
+class _GwDims(dict):
+    """Dim sizes bound by the arguments; a size no argument fixes is a clear error."""
+
+    dtype = np.dtype(float)  # the floating dtype of the arrays passed (float32 stays float32)
+
+    def __missing__(self, key):
+        raise ValueError(
+            f"the size of dim {key} is not known from the arrays passed (none of them has "
+            f"{key} as a dim of its own)"
+        )
+
+
+# set only while the finite-difference check evaluates the value function at a complex step
+_GW_COMPLEX_STEP = []
+
+
+def _gw_check(specs, last=None):
+    """Validate the arguments; returns the arrays and the dims they bind. When `last` is
+    given and no argument needed a conversion, remember the call's key there (fast path)."""
+    dims, owner, out, products = _GwDims(), {}, [], []
+    key, plain, kinds = [], last is not None, []
+    for name, value, spec in specs:
+        if spec:
+            key += (type(value), getattr(value, "shape", None), getattr(value, "dtype", None))
+        else:
+            key.append(type(value))
+        if isinstance(value, (str, bytes)) or value is None:
+            raise TypeError(f"{name} must be a numeric array, got {type(value).__name__}")
+        try:
+            a = np.asarray(value)
+        except Exception as err:
+            raise TypeError(
+                f"{name} must be a numeric array; NumPy cannot read it ({err})"
+            ) from None
+        if a.dtype.kind not in "biufc":
+            got = f"dtype {a.dtype}" if isinstance(value, np.ndarray) else type(value).__name__
+            raise TypeError(f"{name} must be a numeric array, got {got}")
+        if a.dtype.kind == "c" and not _GW_COMPLEX_STEP:
+            if " " in name:  # a direction or cotangent, not a declared symbol
+                raise TypeError(
+                    f"{name} is a complex array, but the block is real: pass a real array"
+                )
+            shown = "(" + ", ".join(map(str, spec)) + ("," if len(spec) == 1 else "") + ")"
+            raise TypeError(
+                f"{name} is a complex array, but {name} is declared real: the derivative of a "
+                f"real formula is wrong for complex input. Declare it `{name}: {shown} complex` "
+                f"or pass a real array (for example {name}.real)"
+            )
+        if a.dtype.kind in "biu":
+            a = a.astype(float)
+        elif a.dtype.kind == "f" and a.dtype.itemsize < 4:
+            a = a.astype(np.float32)  # LAPACK has no half precision
+        if a.ndim != len(spec):
+            want = ("a scalar", "a vector", "a matrix")[len(spec)]
+            shown = "(" + ", ".join(map(str, spec)) + ("," if len(spec) == 1 else "") + ")"
+            axes = "1 axis" if a.ndim == 1 else f"{a.ndim} axes"
+            raise ValueError(f"{name} should be {want} {shown} but has {axes}, shape {a.shape}")
+        for axis, (d, n) in enumerate(zip(spec, a.shape)):
+            word = ("rows", "columns")[axis] if len(spec) == 2 else "entries"
+            if isinstance(d, int):
+                if n != d:
+                    raise ValueError(f"{name} has {n} {word} but its declaration says {d}")
+            elif "*" in d:
+                products.append((name, word, d, n))
+            elif d in dims:
+                if dims[d] != n:
+                    other, other_word = owner[d]
+                    raise ValueError(
+                        f"{name} has {n} {word} but {other} has {d} = {dims[d]}"
+                        + (f" {other_word}" if other_word != word else "")
+                    )
+            else:
+                dims[d], owner[d] = n, (name, word)
+        if spec:
+            kinds.append(a.dtype)
+            plain = plain and type(value) is np.ndarray and a is value and a.dtype.kind == "f"
+        else:
+            # a Python number is weak in NumPy's promotion: float32 arrays stay float32
+            plain = plain and type(value) in (float, int)
+            a = a.item()
+        out.append(a)
+    for _ in range(len(products)):  # after every plain dim is bound; a lone unknown is inferred
+        pending = []
+        for name, word, d, n in products:
+            want, unknown = 1, []
+            for part in d.split("*"):
+                if part.isdigit() or part in dims:
+                    want *= int(part) if part.isdigit() else dims[part]
+                else:
+                    unknown.append(part)
+            if not unknown:
+                if n != want:
+                    raise ValueError(f"{name} has {n} {word} but {d} = {want}")
+            elif len(unknown) == 1 and n % want == 0:
+                dims[unknown[0]], owner[unknown[0]] = n // want, (name, word)
+            else:
+                pending.append((name, word, d, n))
+        if len(pending) == len(products):
+            break  # what stays unknown is reported where a size is needed
+        products = pending
+    dims.dtype = np.result_type(*kinds, np.float32) if kinds else np.result_type(*out, 0.0)
+    if plain:
+        last[0] = (tuple(key), dims)
+    return out, dims
+'''
+
+
+def _key_text(names_and_specs) -> str:
+    parts = []
+    for var, spec in names_and_specs:
+        if spec == "()":
+            parts.append(f"type({var})")
+        else:
+            parts.append(f"type({var}), {var}.shape, {var}.dtype")
+    return "(" + ", ".join(parts) + ("," if len(parts) == 1 and "," not in parts[0] else "") + ")"
+
+
+def check_code(fname: str, entries: list) -> tuple[list[str], list[str]]:
+    """(module-level lines, function-body lines) checking the arguments of `fname`.
+
+    `entries` lists (label, variable, spec text) in argument order; spec text as written into
+    the generated call, e.g. "('n', 'p')" or "()".
+    """
+    if not entries:
+        return [], ["    _dims = _gw_check(())[1]"]
+    cache = f"_gw_last_{fname}"
+    targets = ", ".join(v for _, v, _ in entries) + ("," if len(entries) == 1 else "")
+    key = _key_text([(v, s) for _, v, s in entries])
+    body = [
+        "    try:",
+        f"        _hit = {cache}[0]",
+        f"        if {key} != _hit[0]:",
+        "            raise LookupError",
+        "        _dims = _hit[1]",
+        "    except (AttributeError, LookupError):",
+        f"        ({targets}), _dims = _gw_check(",
+        "            (",
+        *[f"                ({label!r}, {v}, {s})," for label, v, s in entries],
+        "            ),",
+        f"            {cache},",
+        "        )",
+    ]
+    return [f"{cache} = [(None, None)]"], body
+
+
+def finite_lines(name: str, shape, what: str) -> list[str]:
+    """Warn when an output is not finite. A sum of squares is not finite exactly when some
+    entry is not (or, harmlessly, when it overflows: then the helper counts and finds none),
+    and costs one BLAS call instead of an isfinite pass and a count."""
+    test = name if all(d is None for d in shape) else f"np.vdot({name}, {name})"
+    return [f"    if not cmath.isfinite({test}):", f"        _gw_finite({name}, {what!r})"]

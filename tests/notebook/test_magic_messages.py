@@ -1,0 +1,59 @@
+"""Messages of the notebook face: line numbers from the cell, a Jacobian target said in words,
+the help of %%derive, positional calls of injected functions."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+from IPython.core.error import UsageError
+from nbhelpers import ARM, COVARIANCE, run_derive
+
+
+def test_line_numbers_count_from_the_cell(shell):
+    cell = "Z: (m, n)\nS: (n, n) spd\n\nnll = logdet(S) + trace(Q)\n"
+    with pytest.raises(UsageError) as err:
+        shell.run_cell_magic("derive", "S", cell)
+    # the cell is "%%derive S" then the four lines above: the unknown Q is on the cell's line 5
+    assert str(err.value).startswith("line 5: unknown name 'Q'")
+
+
+def test_a_vector_target_says_it_becomes_a_jacobian(shell):
+    cap = run_derive(shell, "W1 W2 --no-check", ARM)
+    assert "grip is a vector of shape (o,), not a scalar" in cap.stdout
+    assert "Jacobian" in cap.stdout and "jvp_grip" in cap.stdout
+
+
+def test_a_scalar_target_has_no_such_note(shell):
+    cap = run_derive(shell, "S --no-check", COVARIANCE)
+    assert "not a scalar" not in cap.stdout
+
+
+def test_derive_help_has_no_stray_marker_and_summarizes_the_language(shell):
+    doc = shell.find_cell_magic("derive").__doc__
+    assert not doc.lstrip().startswith("::") and "\n::" not in doc
+    assert doc.startswith("Usage:\n  %%derive")
+    for words in ("formula language", "X: (n, p)", "spd", "@ matrix product", "logdet", "line 1"):
+        assert words in doc, words
+
+
+def test_injected_functions_called_positionally_say_what_to_do(shell):
+    run_derive(shell, "S --no-check", COVARIANCE)
+    grad = shell.user_ns["grad_nll"]
+    Z, S = np.ones((3, 2)), np.eye(2)
+    with pytest.raises(TypeError) as err:
+        grad(Z, S, 3.0)
+    text = str(err.value)
+    assert text.startswith("grad_nll() got 3 arrays by position")
+    assert "pass arrays by keyword: grad_nll(Z=..., S=..., days=...)" in text
+    assert "gradient_S" not in text
+    assert grad(Z=Z, S=S, days=3.0).shape == (2, 2)
+
+
+def test_the_gradient_of_an_spd_variable_is_labelled_symmetric():
+    from gradwright import derive
+    from gradwright.notebook.render import shape_rows
+
+    rows = shape_rows(derive(COVARIANCE, wrt="S"))
+    result = next(r for r in rows if r["role"] == "result")
+    assert result["structure"] == "symmetric"  # the gradient is not positive definite
+    assert next(r for r in rows if r["symbol"] == "S")["structure"] == "spd"
