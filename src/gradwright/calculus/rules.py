@@ -51,7 +51,10 @@ def _symbol(x, d):
 def _named(x, d):
     out = d(x.body)
     # f'(body) written with the definition's name: d(tanh(u)) for H = tanh(u) is (1 - H²) du
-    return E.substitute(out, {x.body: x}) if x.children and x.body.children else out
+    # (not while steps are displayed: a pending d(body) renamed d(H) would expand forever)
+    if not x.body.children or has_pending(out):
+        return out
+    return E.substitute(out, {x.body: x})
 
 
 # --- linear structure -------------------------------------------------------------------------
