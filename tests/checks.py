@@ -432,6 +432,41 @@ def _keyword_literal(node):
     raise UnreadableBlock(f"not a literal keyword value: {ast.dump(node)[:60]}")
 
 
+def _name_value(name: str, env: dict, sizes: dict):
+    """A symbol or definition, else a dim (its size, as NumPy code would hold it), else pi."""
+    if name in env:
+        return env[name]
+    if name in sizes:
+        return float(sizes[name])
+    if name == "pi":
+        return np.pi
+    raise KeyError(name)
+
+
+def _subscript_key(node, dim):
+    """The NumPy key of `a[...]` with integer literals, dims and None (new axes)."""
+    import ast
+
+    def one(item):
+        if isinstance(item, ast.Slice):
+            if item.step is not None:
+                raise UnreadableBlock("a slice with a step")
+            lo = None if item.lower is None else position(item.lower)
+            hi = None if item.upper is None else position(item.upper)
+            return slice(lo, hi)
+        if isinstance(item, ast.Constant) and item.value is None:
+            return None
+        return position(item)
+
+    def position(item):
+        if isinstance(item, ast.UnaryOp) and isinstance(item.op, ast.USub):
+            return -position(item.operand)
+        return dim(item)
+
+    items = node.elts if isinstance(node, ast.Tuple) else [node]
+    return tuple(one(i) for i in items)
+
+
 class UnreadableBlock(Exception):
     """The test-side reader cannot read the block (it is not in the language as NumPy reads it)."""
 
@@ -463,13 +498,17 @@ def jax_reference(block_text: str, sizes: dict):
             return int(node.value)
         if isinstance(node, ast.Name):
             return sizes[node.id]
+        if isinstance(node, ast.BinOp) and isinstance(node.op, ast.Mult):
+            return dim(node.left) * dim(node.right)
         raise UnreadableBlock(f"not a dim: {ast.dump(node)}")
 
     def ev(node, env):
         if isinstance(node, ast.Constant):
             return float(node.value)
         if isinstance(node, ast.Name):
-            return env[node.id]
+            return _name_value(node.id, env, sizes)
+        if isinstance(node, ast.Subscript):
+            return ev(node.value, env)[_subscript_key(node.slice, dim)]
         if isinstance(node, ast.UnaryOp) and isinstance(node.op, (ast.USub, ast.UAdd)):
             v = ev(node.operand, env)
             return -v if isinstance(node.op, ast.USub) else v

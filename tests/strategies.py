@@ -360,6 +360,60 @@ class _Gen(_NumpyMoreOps):
     def op_mpow(self, s, k):
         return f"mpow({self.expr(s, k)}, {self.draw(st.sampled_from(['2', '3']))})"
 
+    # --- NumPy's broadcasting, constant indexing and dims as numbers (issue 8) ----------------
+    # every index below is in range for any size the fuzzer draws (all sizes are >= 2)
+
+    def op_bias(self, s, k):
+        """A matrix plus a vector along its last axis, in either order."""
+        m, v = self.expr(s, k), self.expr((s[1],), k)
+        return f"({m} + {v})" if self.draw(st.booleans()) else f"({v} - {m})"
+
+    def op_column_axis(self, s, k):
+        return f"({self.expr(s, k)} * {self.expr((s[0],), k)}[:, None])"
+
+    def op_row_axis(self, s, k):
+        return f"({self.expr(s, k)} / {self.positive((s[1],), k)}[None, :])"
+
+    def op_matrix_column(self, s, k):
+        j = self.draw(st.sampled_from(["0", "-1", "1"]))
+        return f"{self.expr((s[0], self.dim()), k)}[:, {j}]"
+
+    def op_matrix_row(self, s, k):
+        i = self.draw(st.sampled_from(["0", "-1"]))
+        return f"{self.expr((self.dim(), s[0]), k)}[{i}]"
+
+    def op_entry(self, s, k):
+        if self.draw(st.booleans()):
+            return f"{self.expr((self.dim(),), k)}[{self.draw(st.sampled_from(['0', '-1']))}]"
+        return f"{self.expr((self.dim(), self.dim()), k)}[1, -2]"
+
+    def op_block(self, s, k):
+        """A (2, ...) or (..., 2) block: the literal dim of the fuzzer is 2."""
+        if 2 not in s:
+            return self.op_scale(s, k)
+        rows = self.draw(st.sampled_from(["-2:", ":2", "0:2"])) if s[0] == 2 else ":"
+        if len(s) == 1:
+            return f"{self.expr((self.dim(),), k)}[{rows}]"
+        cols = self.draw(st.sampled_from(["-2:", ":2", "1:3"])) if s[1] == 2 else ":"
+        src = (
+            self.dim() if s[0] == 2 else s[0],
+            self.draw(st.sampled_from(["p", "n"])) if s[1] == 2 else s[1],
+        )
+        return f"{self.expr(src, k)}[{rows}, {cols}]"
+
+    def op_dim_number(self, s, k):
+        named = [d for d in s if isinstance(d, str)]
+        if not named:
+            return self.op_scale(s, k)
+        d = self.draw(st.sampled_from(named))
+        return f"({d} / 2 * {self.expr(s, k)} + pi)"
+
+    ENTRYWISE_OPS = ENTRYWISE_OPS + ["dim_number"]
+    SCALAR_OPS = SCALAR_OPS + ["entry"]
+    VECTOR_OPS = VECTOR_OPS + ["matrix_column", "matrix_row", "block"]
+    MATRIX_OPS = MATRIX_OPS + ["bias", "column_axis", "row_axis", "block"]
+    SQUARE_OPS = SQUARE_OPS + ["bias", "column_axis", "row_axis"]
+
     # --- the block ---------------------------------------------------------------------------
 
     def block(self, target_kind: str) -> DrawnBlock:

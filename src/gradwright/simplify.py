@@ -7,6 +7,7 @@ Every rewrite keeps values equal (tested at random points).
 from __future__ import annotations
 
 from . import expr as E
+from .standard_forms import standard_form
 
 __all__ = ["simplify", "expand"]
 
@@ -37,6 +38,7 @@ def simplify(e: E.Expr) -> E.Expr:
                 out = E.matmul(E.inverse(new[0]), new[1])
             else:
                 out = E.rebuild_smart(x, new)
+            out = standard_form(out)
             if type(out) is E.Add:
                 out = _factor_common(out)
         memo[x] = out

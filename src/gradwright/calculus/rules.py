@@ -52,7 +52,12 @@ def _symbol(x, d):
 
 @rule(E.Named, "definition", structural=True)
 def _named(x, d):
-    return d(x.body)
+    out = d(x.body)
+    # f'(body) written with the definition's name: d(tanh(u)) for H = tanh(u) is (1 - H²) du
+    # (not while steps are displayed: a pending d(body) renamed d(H) would expand forever)
+    if not x.body.children or has_pending(out):
+        return out
+    return E.substitute(out, {x.body: x})
 
 
 # --- linear structure -------------------------------------------------------------------------

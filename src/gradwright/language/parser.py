@@ -22,8 +22,10 @@ from ..entrywise import SPELLED_APART
 from ..errors import FormulaError, NotSupportedError, ShapeError
 from . import stable_forms
 from .broadcast import broadcast_all, broadcast_shapes, clash_message, internal_shape, numpy_shape
+from .constants import ConstantChecks
 from .registry import CALLS
 from .subscripts import subscript
+from .syntax_errors import SyntaxErrors
 
 STRUCTURE_WORDS = (
     "symmetric", "spd", "diagonal", "positive", "orthogonal", "square", "invertible", "lower",
@@ -231,7 +233,7 @@ def parse_shape_spec(spec) -> tuple[tuple, tuple[str, ...]]:
     raise FormulaError(f"a shape must be a tuple of dims or text like '(n, k) spd', got {spec!r}")
 
 
-class _Reader:
+class _Reader(SyntaxErrors, ConstantChecks):
     def __init__(self, text: str, shapes, allow_differentials: bool):
         self.text = text
         self.shapes = shapes
@@ -722,97 +724,6 @@ class _Reader:
         except ValueError as err:  # pragma: no cover - NUL and surrogates are refused earlier
             self.fail(f"cannot read the line: {err}", lineno, 0, 1)
 
-    def syntax_error(self, err, code, lineno):
-        """Python's SyntaxError, said in the words of the formula language."""
-        msg = err.msg or "invalid syntax"
-        rel = (err.lineno or 1) - 1
-        line = min(lineno + rel, len(self.source_lines))
-        src = self.source_lines[line - 1]
-        col = max(0, (err.offset or 1) - 1)
-        col = min(col, max(0, len(src)))
-        width = 1
-        if getattr(err, "end_lineno", None) == err.lineno and err.end_offset:
-            width = max(1, min(err.end_offset - 1, len(src)) - col)
-        first = _OPENER_RE.match(code)
-        word = first.group(1) if first else ""
-        assign = _ASSIGN_RE.match(code)
-        if assign and keyword.iskeyword(assign.group(1)):
-            self.check_name(assign.group(1), lineno, code.index(assign.group(1)))
-        if word in _COMPOUND_OPENERS:
-            self.fail(
-                _not_in_language(_COMPOUND_OPENERS[word]), lineno, code.index(word), len(word)
-            )
-        if msg.startswith("unexpected indent") or msg.startswith("unindent"):
-            indent = len(src) - len(src.lstrip())
-            self.fail(
-                "every line of a block starts at the left margin (this one is indented)",
-                line,
-                0,
-                max(1, indent),
-            )
-        if (
-            "unterminated string" in msg
-            or "EOL" in msg
-            or "unicode error" in msg
-            or "triple-quoted" in msg
-        ):
-            self.fail(_not_in_language("strings are"), line, col, 1)
-        if msg.startswith("f-string"):
-            self.fail(_not_in_language("f-strings are"), line, col, 1)
-        if "integer string conversion" in msg:
-            digits = re.search(r"\d{100,}", src)
-            at = digits.start() if digits else col
-            self.fail(
-                "the number is far too long; constants are limited to about "
-                f"{LIMITS['constant_bits'] * 3 // 10:,} digits",
-                line,
-                at,
-                20,
-            )
-        if "too many nested parentheses" in msg:
-            # CPython's tokenizer allows 200 open brackets (MAXLEVEL, from memory)
-            self.fail(
-                "too many nested parentheses for Python's reader; split the formula into "
-                f"definitions (gradwright allows {LIMITS['nesting_depth']} levels)",
-                line,
-                col,
-                1,
-            )
-        if "too complex" in msg:
-            self.fail(
-                "the formula is too complex for Python's reader; split it into definitions",
-                line,
-                col,
-                1,
-            )
-        if code.rstrip().endswith("\\") and ("EOF" in msg or "end of file" in msg):
-            self.fail(
-                "the last line ends with a '\\' continuation but nothing follows",
-                line,
-                max(0, len(src.rstrip()) - 1),
-                1,
-            )
-        if "'(' was never closed" in msg or "was never closed" in msg:
-            self.fail(
-                f"syntax error: {msg} (every opening bracket needs its closing one)",
-                line,
-                col,
-                1,
-            )
-        if msg.startswith("invalid syntax. Perhaps you forgot a comma"):
-            msg = "two operands in a row with no operator between them (a missing @, * or +?)"
-        elif msg == "invalid syntax":
-            msg = (
-                "invalid syntax here (an operand or an operator is missing, or there is one "
-                "too many)"
-            )
-        elif msg.startswith("invalid syntax. Maybe you meant '==' or ':='"):
-            msg = (
-                "'=' can only define a name at the start of a line (R = ...); "
-                "keyword arguments and comparisons are not part of the formula language"
-            )
-        self.fail(f"syntax error: {msg}", line, col, width)
-
     # --- expressions -------------------------------------------------------------------------
 
     def expression(self, node):
@@ -1014,45 +925,6 @@ class _Reader:
         out = self.binop_checked(op, a, b, node)
         self.check_constant_size(out, node)
         return out
-
-    def check_constant_power(self, a, b, node):
-        """Refuse `9**9**9` before computing it: exact powers grow by |k| times the bits."""
-        if type(b) is not E.Const or b.value.denominator != 1:
-            return
-        k = b.value.numerator
-        if type(a) is E.Const:
-            base = a.value
-            if base == 0 and k < 0:
-                self.fail_node("division by zero (0 to a negative power)", node)
-            if abs(base.numerator) <= 1 and base.denominator == 1:
-                return  # 0, 1, -1: any power stays small
-            bits = max(base.numerator.bit_length(), base.denominator.bit_length())
-            if bits * abs(k) > LIMITS["constant_bits"]:
-                self.fail_node(
-                    "the constant is too large to compute exactly (more than "
-                    f"{LIMITS['constant_bits']:,} bits); write a smaller power",
-                    node,
-                )
-        elif abs(k).bit_length() > LIMITS["constant_bits"]:  # pragma: no cover - literal bound
-            self.fail_node("the exponent is too large", node)
-
-    def check_constant_size(self, out, node):
-        """Exact constants stay below LIMITS['constant_bits'] (and so stay printable)."""
-        consts = [out] if type(out) is E.Const else [c for c in out.args if type(c) is E.Const]
-        for c in consts:
-            v = c.value
-            if v and v.numerator.bit_length() - v.denominator.bit_length() > 1024:
-                # the generated code computes in float64, whose largest value is about 1.8e308
-                self.fail_node(
-                    "the constant is larger than the largest float64 (about 1.8e308)", node
-                )
-            if max(v.numerator.bit_length(), v.denominator.bit_length()) > LIMITS["constant_bits"]:
-                self.fail_node(
-                    "the constant is too large to compute exactly (more than "
-                    f"{LIMITS['constant_bits']:,} bits, about "
-                    f"{LIMITS['constant_bits'] * 3 // 10:,} digits)",
-                    node,
-                )
 
     def binop_checked(self, op, a, b, node):
         if op in (ast.Mult, ast.Div):

@@ -13,6 +13,7 @@ from IPython.core.error import UsageError
 from IPython.core.magic import Magics, cell_magic, line_magic, magics_class
 from IPython.core.magic_arguments import argument, magic_arguments, parse_argstring
 
+from ..language.help import language_help
 from .render import SHOW_CHOICES, derivation_bundle, shape_table_bundle
 
 __all__ = ["GradwrightMagics", "load_ipython_extension"]
@@ -266,3 +267,7 @@ GradwrightMagics.identities.__doc__ = _help(GradwrightMagics.identities.__doc__ 
 def load_ipython_extension(ipython) -> None:
     """Register gradwright's magics (`%load_ext gradwright`)."""
     ipython.register_magics(GradwrightMagics)
+
+
+# the formula language's constructs in `%%derive?` (after the help generated from the options)
+GradwrightMagics.derive.__doc__ = (GradwrightMagics.derive.__doc__ or "") + language_help()

@@ -169,6 +169,16 @@ class NumpyPrinter(NumpyAxisMixin, TextPrinter):
     def segment(self, seg) -> str:
         """One product without unit inner axes: diagonal factors folded in, cost-ordered."""
         seg = self._reuse_products(list(seg))
+        if len(seg) > 1:  # Sᵀ @ G and G @ S for a selection S: G put in place, no eye(n)
+            first = seg[0].args[0] if type(seg[0]) is E.Transpose else None
+            left = self._placement(first) if first is not None else None
+            right = self._placement(seg[-1])
+            if left is not None or right is not None:
+                self.use("_gw_place")
+                rest = seg[1:] if left is not None else seg[:-1]
+                n, lo, hi = left if left is not None else right
+                axis = 0 if left is not None else 1
+                return f"_gw_place({self.segment(rest)}, {n}, {lo}, {hi}, {axis})"
         items = []  # (text, shape, is_simple)
         pending_diag = None
         for f in seg:
@@ -406,6 +416,24 @@ class NumpyPrinter(NumpyAxisMixin, TextPrinter):
 
     def _print_Abs(self, e):
         return f"np.abs({self._print(e.args[0])})"
+
+    def _print_Index(self, e):
+        a, rows, cols = e.args
+        if type(a) is E.Identity and rows[0] == "at" and cols == E.FULL:
+            self.use("_gw_unit")  # e_i without forming eye(n)
+            return f"_gw_unit({self.dim(a.args[0])}, {rows[1]})"
+        return super()._print_Index(e)
+
+    def _placement(self, f):
+        """(n, lo, hi) when f is a slice of eye(n) (a selection S) as a chain factor, else None."""
+        if type(f) is not E.Index or type(f.args[0]) is not E.Identity:
+            return None
+        rows, cols = f.args[1], f.args[2]
+        if rows[0] != "slice" or cols != E.FULL or self.gen.temps.get(f) is not None:
+            return None
+        lo, hi = ("None" if b is None else self.dim(b) if isinstance(b, E.Dim) else str(b)
+                  for b in rows[1:])  # fmt: skip
+        return self.dim(f.args[0].args[0]), lo, hi
 
     def _print_D(self, e):  # pragma: no cover
         raise AssertionError("pending differentials are never printed as code")

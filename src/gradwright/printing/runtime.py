@@ -7,6 +7,26 @@ from .checks import CHECK_HELPER
 
 HELPERS = {
     "_gw_check": CHECK_HELPER,
+    "_gw_unit": """
+def _gw_unit(n, i):
+    # the unit vector of length n with its 1 at NumPy position i (the adjoint of x[i])
+    out = np.zeros(n)
+    out[i] = 1.0
+    return out
+""",
+    "_gw_place": """
+def _gw_place(g, n, lo, hi, axis):
+    # zeros of length n along axis with g at positions lo:hi (the adjoint of slicing)
+    g = np.asarray(g)
+    axis = axis if g.ndim == 2 else 0
+    shape = list(g.shape)
+    shape[axis] = n
+    out = np.zeros(shape, dtype=np.result_type(g.dtype, float))
+    where = [slice(None)] * g.ndim
+    where[axis] = slice(lo, hi)
+    out[tuple(where)] = g
+    return out
+""",
     "_gw_finite": """
 def _gw_finite(value, what):
     bad = np.size(value) - np.count_nonzero(np.isfinite(value))

@@ -516,6 +516,22 @@ class _GwXp:
 
     # --- the generated code's helpers, one method each ----------------------------------------
 
+    def gw_unit(self, n, i):
+        """The unit vector of length n with its 1 at NumPy position i (no in-place writes)."""
+        return self.ns.astype(self.ns.arange(n) == i % n, self.dtype)
+
+    def gw_place(self, g, n, lo, hi, axis):
+        """Zeros of length n along axis with g at positions lo:hi, by concatenation."""
+        g = self._arr(g)
+        axis = axis if g.ndim == 2 else 0
+        lo, hi, _ = slice(lo, hi).indices(n)
+        shape = list(g.shape)
+        parts = []
+        for width in (lo, n - hi):
+            shape[axis] = width
+            parts.append(self.zeros(tuple(shape)))
+        return self.ns.concat([parts[0], g, parts[1]], axis=axis)
+
     def gw_finite(self, value, what):
         if _gw_library(value) != self.library or not self.concrete(value):
             return value  # a constant, a graph or a trace (whose entries exist only later)
