@@ -73,4 +73,6 @@ def text_precedence(e: E.Expr) -> int:
         return PRODUCT
     if t is E.Power:
         return POSTFIX - 5
+    if t is E.SizeOf and len(e.dim.names) + (e.dim.coef != 1) > 1:
+        return PRODUCT  # `k*n` (a product of dims) is a product: x / (k*n), not x / k*n
     return ATOM
