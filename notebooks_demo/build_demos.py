@@ -547,8 +547,8 @@ loss = norm(Y - H @ X)**2""",
     ),
     (
         "md",
-        """The derivation keeps `dH` and `conj(dH)` apart, then uses that the loss is real to read off
-the gradient. The check panel moves `H` along real and imaginary directions (the complex step
+        """The derivation keeps `dH` and `conj(dH)` apart, then uses that the loss is real to read
+off the gradient. The check panel moves `H` along real and imaginary directions (the complex step
 needs a real function of real inputs, so it is not offered here). From code:""",
     ),
     ("code", """print(loss_check.run().summary())"""),
