@@ -11,6 +11,7 @@ own module and speed), array-API modules per library, and which dims a Dask inpu
 
 from __future__ import annotations
 
+import inspect
 import types
 
 import numpy as np
@@ -112,13 +113,31 @@ def _dense(ns: dict, name: str, args: tuple, kwargs: dict):
     return xp.stack(columns, axis=1)
 
 
-def _dispatch_template(np_fn, route, plain):
+def _dispatch_template(np_fn, route, plain, npos, refuse):
     def dispatch(*args, **kwargs):
+        if len(args) > npos:
+            refuse(len(args))
         if plain.issuperset(map(type, kwargs.values())) and plain.issuperset(map(type, args)):
             return np_fn(*args, **kwargs)
         return route(args, kwargs)
 
     return dispatch
+
+
+def _refuse_positional(np_fn):
+    """The error for arrays passed by position, in words that say what to do."""
+    params = inspect.signature(np_fn).parameters.values()
+    positional = [p.name for p in params if p.kind is not p.KEYWORD_ONLY]
+    keywords = [p.name for p in params if p.kind is p.KEYWORD_ONLY]
+    shown = ", ".join([*positional, *(f"{k}=..." for k in keywords)])
+    name = np_fn.__name__
+
+    def refuse(count):
+        raise TypeError(
+            f"{name}() got {count} positional arguments: pass arrays by keyword: {name}({shown})"
+        )
+
+    return len(positional), refuse
 
 
 def dispatching(derivation, name: str, ns: dict):
@@ -137,7 +156,8 @@ def dispatching(derivation, name: str, ns: dict):
     def route(args, kwargs):
         return _route(derivation, name, np_fn, args, kwargs)
 
-    inner = _dispatch_template(np_fn, route, _PLAIN)
+    npos, refuse = _refuse_positional(np_fn)
+    inner = _dispatch_template(np_fn, route, _PLAIN, npos, refuse)
     # a function whose globals are the NumPy module's, like the function it stands for: the
     # finite-difference check reaches the module's state through __globals__
     fn = types.FunctionType(inner.__code__, ns, name, None, inner.__closure__)

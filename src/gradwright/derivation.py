@@ -6,10 +6,8 @@ Everything is computed from the one differential value `d(f)`, lazily, and cache
 from __future__ import annotations
 
 import functools
-import inspect
 import itertools
 import linecache
-import types
 from dataclasses import dataclass
 
 from . import expr as E
@@ -579,7 +577,7 @@ class Derivation:
             raise NotSupportedError(f"not supported yet: {name.replace('_', ' ')} for this target")
         from .backends import dispatching  # NumPy arguments go straight to ns[name]
 
-        return _arrays_by_keyword(dispatching(self, name, ns))
+        return dispatching(self, name, ns)  # (arrays by position refused there, in words)
 
     def function(self):
         """f(**arrays) -> the value of the target."""
@@ -747,29 +745,6 @@ Derivation.steps.__set_name__(Derivation, "steps")
 
 
 _GENERATED = itertools.count(1)
-
-
-def _arrays_by_keyword(fn):
-    """fn with a call that passes arrays by position refused in words that say what to do."""
-    params = inspect.signature(fn).parameters.values()
-    positional = [p.name for p in params if p.kind is not p.KEYWORD_ONLY]
-    keywords = [p.name for p in params if p.kind is p.KEYWORD_ONLY]
-
-    def call(*args, **arrays):
-        if len(args) > len(positional):
-            shown = ", ".join([*positional, *(f"{k}=..." for k in keywords)])
-            raise TypeError(
-                f"{fn.__name__}() got {len(args)} positional arguments: pass arrays by "
-                f"keyword: {fn.__name__}({shown})"
-            ) from None
-        return fn(*args, **arrays)
-
-    # the wrapper lives in the generated module's globals, like the function it stands for
-    # (callers read state such as the last chosen order from `g.__globals__`)
-    wrapped = types.FunctionType(
-        call.__code__, fn.__globals__, fn.__name__, call.__defaults__, call.__closure__
-    )
-    return functools.update_wrapper(wrapped, fn)
 
 
 def _words(sym: E.Symbol) -> tuple:
