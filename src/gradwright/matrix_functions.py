@@ -254,21 +254,24 @@ class SolveSylvester(Expr):
         return inverse(add(kron(Identity(b.shape[0]), a), kron(transpose(b), Identity(a.shape[0]))))
 
 
+def _lyapunov_shape(a: Expr, q: Expr, name: str):
+    """A square A and a right-hand side Q shaped like it."""
+    _need_square(a, name)
+    _matrix_rhs(q, name)
+    if q.shape != a.shape:
+        raise ShapeError(
+            f"{name}(A, Q) needs Q shaped like A, got a {describe(a)} and a {describe(q)}"
+        )
+    return q.shape
+
+
 class SolveContinuousLyapunov(Expr):
     """X with A X + X Aᵀ = Q (scipy.linalg.solve_continuous_lyapunov); linear in Q."""
 
     __slots__ = ()
 
     def _infer_shape(self):
-        a, q = self.args
-        _need_square(a, "solve_continuous_lyapunov")
-        _matrix_rhs(q, "solve_continuous_lyapunov")
-        if q.shape != a.shape:
-            raise ShapeError(
-                f"solve_continuous_lyapunov(A, Q) needs Q shaped like A, got a {describe(a)} "
-                f"and a {describe(q)}"
-            )
-        return q.shape
+        return _lyapunov_shape(*self.args, "solve_continuous_lyapunov")
 
     def known_symmetric(self) -> bool:
         return is_symmetric(self.args[1])
@@ -286,15 +289,7 @@ class SolveDiscreteLyapunov(Expr):
     __slots__ = ()
 
     def _infer_shape(self):
-        a, q = self.args
-        _need_square(a, "solve_discrete_lyapunov")
-        _matrix_rhs(q, "solve_discrete_lyapunov")
-        if q.shape != a.shape:
-            raise ShapeError(
-                f"solve_discrete_lyapunov(A, Q) needs Q shaped like A, got a {describe(a)} "
-                f"and a {describe(q)}"
-            )
-        return q.shape
+        return _lyapunov_shape(*self.args, "solve_discrete_lyapunov")
 
     def known_symmetric(self) -> bool:
         return is_symmetric(self.args[1])
