@@ -29,7 +29,7 @@ ALLOWED_EXEC = {
     ("backends.py", "exec"),
     ("backends.py", "compile"),
     # the function families: module names from the package's own directory, never user text
-    ("language/parser.py", "import_module"),
+    ("language/vocabulary.py", "import_module"),
     # the packed block Hessian and the values of definitions: generated modules too
     ("calculus/hessian.py", "exec"),
     ("calculus/hessian.py", "compile"),
