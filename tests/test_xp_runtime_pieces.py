@@ -74,3 +74,13 @@ def test_the_joined_runtime_runs_with_numpy_arrays():
     )
     with pytest.raises(ValueError, match="has 5 rows but m\\*p = 6"):
         ns["_gw_check"]((("A", np.ones((5, 2)), ("m*p", "p")), ("x", np.ones(3), ("m",))))
+
+
+def test_a_singular_matrix_is_named_in_the_formulas_words():
+    ns: dict = {}
+    exec(compile(runtime_source(), "<joined runtime>", "exec"), ns)  # our own module text
+    _, _, xp = ns["_gw_check"]((("A", np.ones((2, 2)), ("n", "n")),))
+    with pytest.raises(np.linalg.LinAlgError, match="^A is singular: .* needs its inverse"):
+        xp.gw_inv(np.ones((2, 2)), "A")
+    with pytest.raises(np.linalg.LinAlgError, match="^A is singular: .* solves with it"):
+        xp.gw_solve(np.ones((2, 2)), np.ones(2), "A.T")

@@ -58,31 +58,28 @@ class DerivationFunctions:
         """hvp(V, **arrays): one variable as today (V shaped like it); with no variable named
         and several in the derivation, or several named, V and the result are packed vectors
         (the layout of `objective()`), cross blocks included."""
-        if len(vars_) == 1 and isinstance(vars_[0], (list, tuple)):
-            vars_ = tuple(vars_[0])
-        if var is None and (len(vars_) > 1 or (not vars_ and len(self.variables) > 1)):
-            from .fitting import packed_hvp_function
+        from .fitting import packed_hvp_function
 
-            return packed_hvp_function(self, vars_ or self.variables)
-        v = self._check_var(var if var is not None else (vars_[0] if vars_ else None))
-        if not self.is_scalar:
-            self.gradient(v)
-        return self._fn(f"hvp_{v}")
+        return self._second_order("hvp", packed_hvp_function, vars_, var)
 
     def hessian_function(self, *vars_: str, var: str | None = None):
         """h(**arrays): the dense Hessian over column-major vec X for one variable; with no
         variable named and several in the derivation, or several named, one matrix over the
         packed vector (the layout of `objective()`), cross blocks included."""
+        from .fitting import packed_hessian_function
+
+        return self._second_order("hessian", packed_hessian_function, vars_, var)
+
+    def _second_order(self, kind: str, packed, vars_: tuple, var: str | None):
+        """The generated `{kind}_{v}` of one variable, or `packed(self, names)` over several."""
         if len(vars_) == 1 and isinstance(vars_[0], (list, tuple)):
             vars_ = tuple(vars_[0])
         if var is None and (len(vars_) > 1 or (not vars_ and len(self.variables) > 1)):
-            from .fitting import packed_hessian_function
-
-            return packed_hessian_function(self, vars_ or self.variables)
+            return packed(self, vars_ or self.variables)
         v = self._check_var(var if var is not None else (vars_[0] if vars_ else None))
         if not self.is_scalar:
             self.gradient(v)
-        return self._fn(f"hessian_{v}")
+        return self._fn(f"{kind}_{v}")
 
     def stationary_point(self, var: str | None = None):
         """The closed-form solution of 'gradient = 0' where one exists."""

@@ -105,31 +105,31 @@ class _GwLinalg:
                 return ValueError(message)
         return None
 
-    def gw_solve(self, a, b, label):
+    def _guarded(self, fn, args, message):
+        """fn(*args), a singular matrix's error said in the formula's words."""
         try:
-            return self.solve(a, b)
+            return fn(*args)
         except Exception as err:
-            bad = self._singular(
-                err,
-                f"{_gw_who(label)} is singular: the formula or its derivative solves with it "
-                "(inv, solve, logdet), which needs an invertible matrix",
-            )
+            bad = self._singular(err, message)
             if bad is None:
                 raise
             raise bad from None
 
+    def gw_solve(self, a, b, label):
+        return self._guarded(
+            self.solve,
+            (a, b),
+            f"{_gw_who(label)} is singular: the formula or its derivative solves with it "
+            "(inv, solve, logdet), which needs an invertible matrix",
+        )
+
     def gw_inv(self, a, label):
-        try:
-            return self.inv(a)
-        except Exception as err:
-            bad = self._singular(
-                err,
-                f"{_gw_who(label)} is singular: the formula or its derivative needs its inverse "
-                "(inv, solve, det, logdet), which does not exist",
-            )
-            if bad is None:
-                raise
-            raise bad from None
+        return self._guarded(
+            self.inv,
+            (a,),
+            f"{_gw_who(label)} is singular: the formula or its derivative needs its inverse "
+            "(inv, solve, det, logdet), which does not exist",
+        )
 
     def gw_logdet(self, a, label):
         sign, value = self.slogdet(a)
