@@ -1,6 +1,7 @@
 """The `Identity` record: one catalogue entry as an immutable object with its rendered face.
 
-The catalogue itself is plain data in `catalogue.py`; this module only wraps each dict.
+The catalogue itself is plain data in `catalogue_*.py` (joined in `catalogue.py`); this module
+only wraps each dict.
 """
 
 from __future__ import annotations
