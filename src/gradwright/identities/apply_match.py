@@ -245,6 +245,11 @@ def _match(p: E.Expr, t: E.Expr, b: _Bindings):
         if b2 is not None:
             yield b2
         return
+    if tp is E.SizeOf:  # a dim used as a number (`c**n`) binds like a dim of a shape
+        b2 = _unify_dim(p.args[0], t.args[0], b)
+        if b2 is not None:
+            yield b2
+        return
     if tp is E.Func:
         if p.name == t.name:
             yield from _match(p.arg, t.arg, b)
@@ -407,6 +412,11 @@ def _build(r: E.Expr, b: _Bindings) -> E.Expr:
         if m is None or n is None:
             raise _Unbound("dim")
         return E.Commutation(m, n)
+    if t is E.SizeOf:
+        d = _map_dim(r.args[0], b)
+        if d is None:
+            raise _Unbound("dim")
+        return E.SizeOf(d)
     if not r.children:
         return r
     return E.rebuild_smart(r, [_build(c, b) for c in r.children])

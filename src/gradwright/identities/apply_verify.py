@@ -35,7 +35,7 @@ def _sample(e: E.Expr, seed: int):
     dims = []
     for node in E.walk(e):
         shapes = [node.shape]
-        if type(node) is E.Commutation:
+        if type(node) in (E.Commutation, E.SizeOf):
             shapes.append(tuple(node.args))
         for shape in shapes:
             for d in shape:

@@ -5,13 +5,19 @@ To add an identity, copy a record, change every field, and run
 
 Fields: `id` (stable kebab-case), `title` (plain words), `tags` (families first), `declarations`
 (formula-language declaration lines), `lhs`, `rhs` (formula-language text; `d(X)` is the
-differential of the declared symbol X), `conditions` (words, where shapes cannot say them),
+differential of the declared symbol X), `conditions` (what shapes cannot say, as lines
+`"SUBJECTS: PROPERTY"` read by `conditions.py`: `"A, A + B: invertible"`, `"c: positive"`,
+`"g: constant in t"`),
 `latex_lhs`, `latex_rhs`, `source` (publication, equation, "(from memory)" when not checked),
 `kind` ("equality", "differential" or "derivative"; a derivative record has `lhs` the scalar
 function, `rhs` its gradient and `wrt` the variable). Optional: `aliases`, other names a
 practitioner may search for ("matrix inversion lemma"); `apply`, the directions in which
 `applicable` offers the identity as a rewrite: "both" (the default), "forward" (lhs -> rhs),
-"backward" (rhs -> lhs) or "none".
+"backward" (rhs -> lhs) or "none"; `notes`, a remark in plain words (no formula source).
+
+Every record is stated at symbolic sizes (`tr(I_n) = n`, never `tr(I_4) = 4`): dims are names
+from the declarations, and a record whose sides use a dim only as a size (`eye(n)`, `n`)
+declares a symbol of that shape so that the dim exists.
 """
 
 from .catalogue_derivatives import DERIVATIVES_RECORDS

@@ -122,12 +122,13 @@ def identity_html(identity, note: str = "") -> str:
         f"{' &middot; ' + html.escape(tags) if tags else ''}</span>",
         f"<div>{html.escape(_math(identity.latex))}</div>",
     ]
+    # catalogue records render their structured conditions as words and inline math
+    when = getattr(identity, "conditions_latex", None)
     if conditions:
-        parts.append(
-            "<div style='font-size:90%'>when: "
-            + html.escape(readable_condition("; ".join(map(str, conditions))))
-            + "</div>"
-        )
+        when = when or readable_condition("; ".join(map(str, conditions)))
+        parts.append(f"<div style='font-size:90%'>when: {html.escape(when)}</div>")
+    if getattr(identity, "notes", ""):
+        parts.append(f"<div style='font-size:90%'>note: {html.escape(identity.notes)}</div>")
     if getattr(identity, "source", None):
         parts.append(
             "<div style='font-size:85%;color:#555'>source: "
