@@ -434,6 +434,7 @@ DERIVATIVES_RECORDS = [
         "latex_rhs": r"\operatorname{softmax}(x)",
         "source": "Boyd & Vandenberghe, Convex Optimization (2004), Sec. 3.1.5 (from memory)",
         "kind": "derivative",
+        "aliases": ("log-sum-exp rule",),
     },
     {
         "id": "gradient-of-diagonal-quadratic-form",

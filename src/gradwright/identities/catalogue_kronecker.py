@@ -270,7 +270,7 @@ KRONECKER_RECORDS = [
         "latex_rhs": r"(B^\top \otimes A) \operatorname{vec}(X)",
         "source": "Henderson & Searle (1981), Linear and Multilinear Algebra 9, eq. (6) (from memory); Petersen & Pedersen, The Matrix Cookbook (Nov. 15, 2012), eq. (520) (from memory)",
         "kind": "equality",
-        "aliases": ("vec trick", "vec of a matrix product"),
+        "aliases": ("vec trick", "vec of a matrix product", "vectorize"),
     },
     {
         "id": "vec-product-left-factor",

@@ -45,6 +45,7 @@ TRACE_RECORDS = [
         "latex_rhs": r"\operatorname{tr}(A)",
         "source": "Petersen & Pedersen, The Matrix Cookbook (Nov. 15, 2012), eq. (13) (from memory)",
         "kind": "equality",
+        "aliases": ("rearrange under the trace",),
     },
     {
         "id": "trace-cyclic-two",
@@ -58,7 +59,11 @@ TRACE_RECORDS = [
         "latex_rhs": r"\operatorname{tr}(B A)",
         "source": "Petersen & Pedersen, The Matrix Cookbook (Nov. 15, 2012), eq. (14) (from memory)",
         "kind": "equality",
-        "aliases": ("trace of a product", "swap the factors under a trace"),
+        "aliases": (
+            "trace of a product",
+            "swap the factors under a trace",
+            "rearrange under the trace",
+        ),
     },
     {
         "id": "trace-cyclic-three",
@@ -72,7 +77,7 @@ TRACE_RECORDS = [
         "latex_rhs": r"\operatorname{tr}(B C A)",
         "source": "Petersen & Pedersen, The Matrix Cookbook (Nov. 15, 2012), eq. (16) (from memory)",
         "kind": "equality",
-        "aliases": ("cyclic property of the trace", "trace rotation"),
+        "aliases": ("cyclic property of the trace", "trace rotation", "rearrange under the trace"),
     },
     {
         "id": "trace-cyclic-three-right",

@@ -58,7 +58,9 @@ def identities_used(derivation) -> list[tuple[object, str]]:
     for rule in rules_used(derivation):
         if rule in _PLAIN_RULES or rule.startswith(("symmetric part", "read off")):
             continue
-        ids = RULE_IDENTITIES.get(rule)
+        # the records that carry the rule's label as an alias, then the table, then the words
+        ids = tuple(i.id for i in known.values() if rule in getattr(i, "aliases", ()))
+        ids = ids or RULE_IDENTITIES.get(rule)
         if ids is None:  # e.g. "chain rule for tanh": the differential of that function
             words = rule.replace("chain rule for", "differential").replace(" rule", "")
             hits = catalogue.search_with_scores(words, limit=1)
@@ -68,6 +70,14 @@ def identities_used(derivation) -> list[tuple[object, str]]:
                 seen.add(identity_id)
                 out.append((known[identity_id], rule))
     return out
+
+
+def _blob(identity) -> str:
+    """The words an "applies to" result is filtered by: title, id, tags and aliases (the rule
+    labels a derivation shows are aliases of their identities)."""
+    words = [identity.title, identity.id, *(identity.tags or ())]
+    words += list(getattr(identity, "aliases", ()) or ())
+    return " ".join(words).lower()
 
 
 def _catalogue():
@@ -247,7 +257,7 @@ class IdentityPanel:
             for identity, rule in identities_used(self.derivation):
                 if tags and not set(tags) & set(identity.tags or ()):
                     continue
-                blob = f"{identity.title} {identity.id} {' '.join(identity.tags or ())}".lower()
+                blob = _blob(identity)
                 if words and not all(word in blob for word in words):
                     continue
                 listed.add(identity.id)
@@ -258,7 +268,7 @@ class IdentityPanel:
                     continue
                 if tags and not set(tags) & set(identity.tags or ()):
                     continue
-                blob = f"{identity.title} {identity.id} {' '.join(identity.tags or ())}".lower()
+                blob = _blob(identity)
                 if words and not all(word in blob for word in words):
                     continue
                 direction = getattr(match, "direction", "")
