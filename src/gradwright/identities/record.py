@@ -232,4 +232,11 @@ class Identity:
         )
 
     def __str__(self) -> str:
-        return f"{self.id}: {self.text}"
+        """One line for a search listing; the conditions in words and formula text.
+
+        >>> from gradwright.identities import get
+        >>> print(get("inverse-scalar-multiple"))
+        inverse-scalar-multiple: inv(c * A) == inv(A) / c  (when c ≠ 0)
+        """
+        when = f"  (when {self.conditions_text})" if self.conditions else ""
+        return f"{self.id}: {self.text}{when}"
