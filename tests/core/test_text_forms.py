@@ -100,6 +100,8 @@ def check_text_forms(d, block: str, seed: int = 3) -> int:
         again = parse_block(head + f"{target} = {printed}", allow_differentials=True).expr
         want = evaluate(e, arrays, differentials=diffs, dims=sizes)
         got = evaluate(again, arrays, differentials=diffs, dims=sizes)
+        if not np.all(np.isfinite(want)):  # exp(exp(exp(X))) overflows: nothing to compare
+            continue
         assert _close(got, want, 1e-9), f"{what}: the text reads back to another value\n{printed}"
         checked += 1
     return checked
