@@ -59,11 +59,7 @@ TRACE_RECORDS = [
         "latex_rhs": r"\operatorname{tr}(B A)",
         "source": "Petersen & Pedersen, The Matrix Cookbook (Nov. 15, 2012), eq. (14) (from memory)",
         "kind": "equality",
-        "aliases": (
-            "trace of a product",
-            "swap the factors under a trace",
-            "rearrange under the trace",
-        ),
+        "aliases": ("trace of a product", "swap the factors under a trace"),
     },
     {
         "id": "trace-cyclic-three",

@@ -58,9 +58,10 @@ def identities_used(derivation) -> list[tuple[object, str]]:
     for rule in rules_used(derivation):
         if rule in _PLAIN_RULES or rule.startswith(("symmetric part", "read off")):
             continue
-        # the records that carry the rule's label as an alias, then the table, then the words
+        # the records that carry the rule's label as an alias and those of the table, else the
+        # words of the label
         ids = tuple(i.id for i in known.values() if rule in getattr(i, "aliases", ()))
-        ids = ids or RULE_IDENTITIES.get(rule)
+        ids = tuple(dict.fromkeys(ids + RULE_IDENTITIES.get(rule, ()))) or None
         if ids is None:  # e.g. "chain rule for tanh": the differential of that function
             words = rule.replace("chain rule for", "differential").replace(" rule", "")
             hits = catalogue.search_with_scores(words, limit=1)
@@ -257,7 +258,7 @@ class IdentityPanel:
             for identity, rule in identities_used(self.derivation):
                 if tags and not set(tags) & set(identity.tags or ()):
                     continue
-                blob = _blob(identity)
+                blob = f"{_blob(identity)} {rule.lower()}"  # the label it is cited under
                 if words and not all(word in blob for word in words):
                     continue
                 listed.add(identity.id)
