@@ -97,7 +97,8 @@ class Match:
 
     @property
     def conditions(self) -> str:
-        return self.identity.conditions
+        """The identity's conditions in words and formula text (`A and B invertible`)."""
+        return self.identity.conditions_text
 
     def __repr__(self) -> str:
         return f"Match({self.summary!r})"

@@ -48,7 +48,7 @@ DETERMINANT_RECORDS = [
     },
     {
         "id": "determinant-scalar-multiple",
-        "title": "determinant of a scalar multiple of an n x n matrix",
+        "title": "determinant of a scalar multiple of an n × n matrix",
         "tags": ("determinant", "scalar", "power"),
         "declarations": ("c: ()", "A: (n, n)"),
         "lhs": "det(c * A)",
@@ -183,7 +183,7 @@ DETERMINANT_RECORDS = [
     },
     {
         "id": "logdet-scalar-multiple",
-        "title": "log-determinant of a positive multiple of an n x n matrix",
+        "title": "log-determinant of a positive multiple of an n × n matrix",
         "tags": ("determinant", "logdet", "log", "scalar"),
         "declarations": ("c: () positive", "S: (n, n) spd"),
         "lhs": "logdet(c * S)",

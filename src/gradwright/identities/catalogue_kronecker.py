@@ -49,7 +49,7 @@ KRONECKER_RECORDS = [
     },
     {
         "id": "kronecker-determinant",
-        "title": "determinant of a Kronecker product (n x n with p x p)",
+        "title": "determinant of a Kronecker product (n × n with p × p)",
         "tags": ("kronecker", "determinant", "power"),
         "declarations": ("A: (n, n)", "B: (p, p)"),
         "lhs": "det(kron(A, B))",
@@ -62,7 +62,7 @@ KRONECKER_RECORDS = [
     },
     {
         "id": "kronecker-logdet",
-        "title": "log-determinant of a Kronecker product (n x n with p x p)",
+        "title": "log-determinant of a Kronecker product (n × n with p × p)",
         "tags": ("kronecker", "determinant", "logdet", "log"),
         "declarations": ("A: (n, n) invertible", "B: (p, p) invertible"),
         "lhs": "logdet(kron(A, B))",
@@ -426,7 +426,7 @@ KRONECKER_RECORDS = [
         "lhs": "commutation(m, n) @ vec(A)",
         "rhs": "vec(A.T)",
         "conditions": (),
-        "notes": "the commutation matrix of dims m, n is the permutation matrix that turns the vec of an m x n matrix into the vec of its transpose",
+        "notes": "the commutation matrix of dims m, n is the permutation matrix that turns the vec of an m × n matrix into the vec of its transpose",
         "latex_lhs": r"K_{m,n} \operatorname{vec}(A)",
         "latex_rhs": r"\operatorname{vec}(A^\top)",
         "source": "Magnus & Neudecker, Matrix Differential Calculus, 3rd ed., Ch. 3, Sec. 3.7, definition of K_mn (from memory); Henderson & Searle (1981), Linear and Multilinear Algebra 9, Sec. 3 (from memory)",
