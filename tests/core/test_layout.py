@@ -28,7 +28,16 @@ def test_every_line_of_every_step_fits(case):
             assert latex_width(line) <= MATH_BUDGET, line
 
 
-@pytest.mark.parametrize("block,wrt", [(LONG, ["W1", "W4"]), (MANY_TERMS, ["A"])])
+#: a Kalman covariance update: its last differential is `1/2 tr((...) dP)`, a scaled trace whose
+#: long argument must be broken inside the trace's parentheses
+KALMAN = (
+    "F: (m, m)\nP: (m, m) spd\nQ: (m, m) spd\nH: (q, m)\nR: (q, q) spd\n"
+    "Pp = F @ P @ F.T + Q\nSg = H @ Pp @ H.T + R\nK = Pp @ H.T @ inv(Sg)\n"
+    "Pn = Pp - K @ H @ Pp\nJ = trace(Pn)"
+)
+
+
+@pytest.mark.parametrize("block,wrt", [(LONG, ["W1", "W4"]), (MANY_TERMS, ["A"]), (KALMAN, ["P"])])
 def test_long_derivations_break_at_operators(block, wrt):
     d = derive(block, wrt=wrt)
     broken = 0

@@ -162,13 +162,31 @@ class LineBreaker:
             if text.count(wrapped) == 1 and (best is None or len(inner) > len(best[1])):
                 best = (c, inner, wrapped)
         if best is None:
-            return [text]
+            return self._around_plain_child(e, text)
         c, inner, wrapped = best
         head, _, tail = text.partition(wrapped)
         sub = self._narrow(latex_width(head) + latex_width(tail) + 1.5, c, inner)
         if len(sub) == 1:
             return [text]
         return [head + r"\Bigl(" + sub[0], *sub[1:-1], sub[-1] + r"\Bigr)" + tail]
+
+    def _around_plain_child(self, e: E.Expr, text: str) -> list[str]:
+        """`head child tail` where the child prints its own parentheses (`\\frac{1}{2}\\,
+        \\operatorname{tr}(...)`): the child is broken where it can be, the rest kept around it."""
+        best = None
+        for c in e.children:
+            inner = self._text(c)
+            if text.count(inner) == 1 and not self._fits(inner):
+                if best is None or len(inner) > len(best[1]):
+                    best = (c, inner)
+        if best is None:
+            return [text]
+        c, inner = best
+        head, _, tail = text.partition(inner)
+        sub = self._narrow(latex_width(head) + latex_width(tail), c, inner)
+        if len(sub) == 1:
+            return [text]
+        return [head + sub[0], *sub[1:-1], sub[-1] + tail]
 
     def _pack(self, pieces: list[tuple[str, list[str]]]) -> list[str]:
         out: list[str] = []
