@@ -7,8 +7,8 @@ import pytest
 from core_cases import GRADIENT_CASES, JACOBIAN_CASES
 
 from gradwright import derive
-from gradwright.notebook.render import MATH_BUDGET, derivation_html, derivation_latex
-from gradwright.printing.layout import broken_lines, latex_width, rule_segments
+from gradwright.notebook.render import MATH_BUDGET, _wrap, derivation_html, derivation_latex
+from gradwright.printing.layout import broken_lines, latex_width, rule_html, rule_segments
 
 CASES = [c for c in GRADIENT_CASES + JACOBIAN_CASES if not c.xfail]
 LONG = (
@@ -59,3 +59,12 @@ def test_rule_names_split_into_words_and_formulas():
     kinds = [k for k, _ in parts]
     assert kinds == ["text", "math", "text", "math"]
     assert all("ᵀ" not in v for k, v in parts if k == "math")
+
+
+def test_an_equation_in_a_rules_words_wraps_as_one_word():
+    # the abs rule's note "0 at x = 0" was wrapped between "x" and "= 0" in the browser
+    words = "norm rule; chain rule for abs (sign(x); 0 at x = 0, the smallest subgradient)"
+    assert "x\u00a0=\u00a00" in rule_html(words)
+    for width in range(8, 60):
+        for line in _wrap(words, width):
+            assert not line.rstrip("}").endswith(" x") and "{= 0" not in line, (width, line)

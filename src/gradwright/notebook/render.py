@@ -56,7 +56,7 @@ def _wrap(words: str, width: int = RULE_WIDTH) -> list[str]:
         if kind == "math":
             units.append((value, "math", len(value) // 2))
             continue
-        for word in re.findall(r"\S+\s*", value):
+        for word in re.findall(r"\S+(?: = \S+)*\s*", value):  # "x = 0" is one word
             units.append((word, "text", len(word)))
     lines: list[list[tuple[str, str]]] = [[]]
     used = 0

@@ -295,12 +295,16 @@ def rule_math(words: str) -> str:
     return " ".join(parts)
 
 
+#: an equation inside a rule's words ("0 at x = 0"): it wraps as one word
+_WORDS_EQUATION = re.compile(r"(?<=\S) = (?=\S)")
+
+
 def rule_html(words: str) -> str:
     """The rule as HTML: escaped words, formulas as inline math `\\( ... \\)`."""
     parts = []
     for kind, value in rule_segments(words):
         if kind == "text":
-            parts.append(html.escape(value))
+            parts.append(html.escape(_WORDS_EQUATION.sub("\u00a0=\u00a0", value)))
         else:
             parts.append(rf"<span class='gradwright-rule-math'>\({html.escape(value)}\)</span>")
     return "".join(parts)
