@@ -57,3 +57,20 @@ def test_the_gradient_of_an_spd_variable_is_labelled_symmetric():
     result = next(r for r in rows if r["role"] == "result")
     assert result["structure"] == "symmetric"  # the gradient is not positive definite
     assert next(r for r in rows if r["symbol"] == "S")["structure"] == "spd"
+
+
+def test_the_shape_table_writes_a_scalar_one_way_and_the_field_once():
+    # seen in the browser: b "()" but "gradient of loss wrt b" "scalar"; a complex vector with
+    # "complex" both as its field and as its structure
+    from gradwright import derive
+    from gradwright.notebook.render import shape_rows
+
+    rows = shape_rows(
+        derive("X: (n, p)\ny: (n,)\nw: (p,)\nb: ()\nf = sum((X @ w + b - y)**2)", wrt=["w", "b"])
+    )
+    shapes = {r["symbol"]: r["shape"] for r in rows}
+    assert shapes["b"] == shapes["gradient of f wrt b"] == "()"
+    rows = shape_rows(derive("R: (m, m) hpd\nw: (m,) complex\nf = real(w.conj() @ R @ w)", wrt="w"))
+    by = {r["symbol"]: r for r in rows}
+    assert by["w"]["field"] == "complex" and by["w"]["structure"] == ""
+    assert by["R"]["structure"] == "hpd"

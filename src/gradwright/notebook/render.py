@@ -255,7 +255,7 @@ def derivation_bundle(derivation, show: str = "steps") -> dict:
 def _shape_text(shape) -> str:
     shape = tuple(shape)
     if not shape:
-        return "scalar"
+        return "()"  # as the symbols' rows above it write a scalar
     return "(" + ", ".join(str(d) for d in shape) + (",)" if len(shape) == 1 else ")")
 
 
@@ -291,6 +291,8 @@ def shape_rows(derivation) -> list[dict]:
         structure = row.get("structure") or ""
         if isinstance(structure, (tuple, list)):
             structure = " ".join(structure)
+        if "field" in row:  # "complex" is the field column's word, not a structure
+            structure = " ".join(w for w in structure.split() if w != "complex")
         rows.append(
             {
                 "symbol": str(row["symbol"]),
