@@ -98,6 +98,10 @@ def test_logdet_of_a_kronecker_product_reads_off_k_inverse():
     assert latex(d.gradient("A")) == r"k\,A^{-1}"
     d = derive("A: (n, n) spd\nB: (k, k) spd\nf = logdet(kron(A, B))", wrt="B")
     assert latex(d.gradient("B")) == r"n\,B^{-1}"
+    # the text form says the same, in the language (a dim in a formula is its size)
+    assert str(d.gradient("B")) == "n * inv(B)"
+    d = derive("A: (n, n) spd\nB: (k, k) spd\nf = logdet(kron(A, kron(B, B)))", wrt="A")
+    assert str(d.gradient("A")) == "(k*k) * inv(A)"
 
 
 def test_one_hadamard_symbol_in_derivations_and_catalogue():

@@ -148,7 +148,11 @@ class TextPrinter(TextAxisMixin, Printer):
         return f"{e.name}({self._print(e.arg)})"
 
     def _print_Trace(self, e):
-        return self.fn("trace", self._print(e.args[0]))
+        a = e.args[0]
+        if type(a) is E.Identity:  # tr(I_k) is k, as the LaTeX shows it; a dim reads as its size
+            size = self.dim(a.args[0])
+            return size if size.isidentifier() or size.isdigit() else f"({size})"
+        return self.fn("trace", self._print(a))
 
     def _print_Det(self, e):
         return self.fn("det", self._print(e.args[0]))
