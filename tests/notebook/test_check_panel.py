@@ -163,6 +163,17 @@ def test_numbers_show_significant_digits_and_exponents():
     assert result.verdict == "ERROR" and "step" in result.error
 
 
+def test_the_verdict_line_writes_the_step_and_tolerance_as_the_boxes_do():
+    # seen: the box said 6.06e-06 and the verdict "step 6.1e-06"; a tolerance typed as 2.5e-07
+    # was reported as "3e-07", a number the user never wrote
+    panel = CheckPanel(derive(COVARIANCE, wrt="S"))
+    panel.tolerance.text.value = "2.5e-07"
+    result = _press(panel)
+    summary = result.summary()
+    assert "tolerance 2.5e-07" in summary, summary
+    assert f"step {panel.step.text.value}," in summary, summary
+
+
 def test_dims_out_of_range_are_refused_visibly_not_clamped():
     panel = CheckPanel(derive(COVARIANCE, wrt="S"))
     panel.size_inputs["n"].value = 100000

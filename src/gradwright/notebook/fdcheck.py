@@ -121,7 +121,8 @@ class CheckResult:
         sizes = ", ".join(f"{k}={v}" for k, v in self.sizes.items())
         return (
             f"{self.verdict}: largest relative error {self.max_rel_error:.2e} {relation} "
-            f"tolerance {self.tolerance:.0e} ({self.method} differences, step {self.step:.1e}, "
+            # the tolerance and step as the panel's boxes show them (three significant digits)
+            f"tolerance {self.tolerance:.3g} ({self.method} differences, step {self.step:.3g}, "
             f"wrt {names}; {sizes or 'no dims'}; seed {self.seed})"
         )
 
