@@ -74,7 +74,7 @@ def main(argv: list[str] | None = None) -> int:
             parts.append("Derivation\n" + d.text_steps())
             parts.append("Shapes\n" + _table(d.shape_table()))
         if args.show in ("steps", "result"):
-            parts.append("Result\n" + _result(d))
+            parts.append("Result\n" + _result(d) + _jacobian_note(d))
         if args.latex:
             parts.append(d.to_latex() if parts else d.to_latex().rstrip("\n"))
         if args.code:
@@ -89,6 +89,20 @@ def main(argv: list[str] | None = None) -> int:
     except BrokenPipeError:  # the reader (e.g. `head`) stopped early
         sys.stderr.close()
     return 0
+
+
+def _jacobian_note(d) -> str:
+    """An array target's derivative is a Jacobian, not a gradient: said, as the magic says it."""
+    if d.is_scalar:
+        return ""
+    shape = tuple(d.target_shape)
+    kind = "a vector" if len(shape) == 1 else "a matrix"
+    written = "(" + ", ".join(str(n) for n in shape) + ("," if len(shape) == 1 else "") + ")"
+    return (
+        f"\n\nNote: the target {d.target} is {kind} of shape {written}, not a scalar, so its "
+        "derivative is a Jacobian, shown in Kronecker form for reading only; the generated code "
+        "(--code) never builds it: its jvp and vjp functions apply it and its transpose."
+    )
 
 
 def _result(d) -> str:
