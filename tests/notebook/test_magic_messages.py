@@ -74,3 +74,24 @@ def test_the_shape_table_writes_a_scalar_one_way_and_the_field_once():
     by = {r["symbol"]: r for r in rows}
     assert by["w"]["field"] == "complex" and by["w"]["structure"] == ""
     assert by["R"]["structure"] == "hpd"
+
+
+def test_a_wrong_shape_in_an_injected_function_is_one_short_traceback(shell):
+    # seen in JupyterLab: five frames through functions.py, backends.py and the generated
+    # module, and a chained "LookupError ... During handling of the above exception"
+    import traceback
+
+    run_derive(shell, "S --no-check", COVARIANCE)
+    grad = shell.user_ns["grad_nll"]
+    with pytest.raises(ValueError) as err:
+        grad(Z=np.ones((3, 2)), S=np.eye(3), days=3.0)
+    assert "S" in str(err.value) and "3" in str(err.value)
+    assert err.value.__suppress_context__ and err.value.__cause__ is None
+    frames = traceback.extract_tb(err.value.__traceback__)
+    inside = [f for f in frames if "gradwright" in f.filename]
+    assert len(inside) == 1 and inside[0].name == "grad_nll", inside
+    shown = "".join(traceback.format_exception(err.value))
+    assert "During handling" not in shown and "<locals>" not in shown
+    with pytest.raises(TypeError) as err:  # a wrong type likewise
+        grad(Z=np.ones((3, 2)), S=np.eye(2), days="three")
+    assert len([f for f in traceback.extract_tb(err.value.__traceback__)]) == 2
