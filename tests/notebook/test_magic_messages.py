@@ -95,3 +95,20 @@ def test_a_wrong_shape_in_an_injected_function_is_one_short_traceback(shell):
     with pytest.raises(TypeError) as err:  # a wrong type likewise
         grad(Z=np.ones((3, 2)), S=np.eye(2), days="three")
     assert len([f for f in traceback.extract_tb(err.value.__traceback__)]) == 2
+
+
+def test_derive_help_fits_its_width_and_separates_printed_forms(shell):
+    # seen in JupyterLab: one-line entries of 200 characters wrapped inside words
+    # ("entrie / s attaining"), internal forms such as eigvalsh_vjp_jvp listed among the
+    # functions a user writes, ⊙ where every derivation writes ∘, structure words missing
+    from gradwright.notebook.magics import HELP_WIDTH
+
+    doc = shell.find_cell_magic("derive").__doc__
+    assert max(len(line) for line in doc.splitlines()) <= HELP_WIDTH
+    written, _, printed = doc.partition("in printed derivatives")
+    functions = written[written.index("functions: ") :]
+    assert "eigvalsh_vjp" not in functions and "kron_contract_left" not in functions
+    assert "eigvalsh_vjp" in printed.split("\n\n")[0]
+    assert "⊙" not in doc and "∘" in doc
+    for word in ("lower", "hermitian", "hpd", "invertible"):
+        assert word in doc.split("structure words:")[1].split("R = X")[0], word
