@@ -138,6 +138,16 @@ def test_namespace_arrays_used_only_when_every_one_fits():
     assert result.passed, result.summary()
     assert set(result.sources.values()) == {"sampled"}  # all or nothing
     assert any("S in your namespace was not used" in note for note in result.notes)
+    # in words, not Python reprs: seen as "it shape (5, 5) does not fit ('n', 'n') with {...}"
+    note = next(n for n in result.notes if n.startswith("S in your namespace"))
+    assert note == (
+        "S in your namespace was not used: it has shape (5, 5), which does not fit (n, n): "
+        "n = 3 from Z."
+    ), note
+    namespace["days"] = "thirty"
+    notes = _press(panel).notes
+    assert "days in your namespace was not used: it is not a numeric array." in notes, notes
+    namespace["days"] = 30.0
     assert any("no array of your namespace was used" in note for note in result.notes)
     namespace["S"] = np.cov(Z.T) + np.eye(3)  # now every array fits
     result = _press(panel)
