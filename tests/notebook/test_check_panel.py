@@ -191,6 +191,11 @@ def test_dims_out_of_range_are_refused_visibly_not_clamped():
     assert "n = 100000 is more than" in panel.dims_message.value
     result = _press(panel)
     assert result.verdict == "ERROR" and "n = 100000" in result.error
+    # seen: "ERROR ValueError: dims: ..." above an empty table and a bare "inputs:"
+    assert "ValueError" not in result.error and "ValueError" not in panel.status.value
+    from gradwright.notebook.check_panel import _table_html
+
+    assert "<table" not in _table_html(result) and "inputs:" not in _table_html(result)
     panel.size_inputs["n"].value = 4
     assert panel.dims_message.value == ""
     assert _press(panel).passed
