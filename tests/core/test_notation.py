@@ -180,3 +180,12 @@ def test_reading_accepts_vectors_and_their_transposes():
     x = E.Symbol("x", (E.Dim.of("n"), None))
     a = E.Symbol("A", (E.Dim.of("n"), E.Dim.of("n")))
     assert reading(E.matmul(E.transpose(x), a, x)) == (1, 1)
+
+
+def test_a_norm_of_a_short_argument_has_text_height_bars():
+    # MathJax drew \left\lVert r \right\rVert as two tiny bars (identity panel, "applies
+    # backward: ||r||^2"); the catalogue writes \lVert ... \rVert, and so do we
+    d = derive("x: (n,)\nA: (n, n)\nf = norm(x)**2 + norm(A)", wrt="x")
+    text = d.latex()
+    assert r"\lVert x \rVert" in text and r"\left\lVert x" not in text
+    assert r"\lVert A \rVert_F" in text
