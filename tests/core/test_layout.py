@@ -68,3 +68,20 @@ def test_an_equation_in_a_rules_words_wraps_as_one_word():
     for width in range(8, 60):
         for line in _wrap(words, width):
             assert not line.rstrip("}").endswith(" x") and "{= 0" not in line, (width, line)
+
+
+def test_a_mixed_second_derivative_breaks_over_lines():
+    # the ferry demo's second_derivative("W", "b").latex() was 1,785 px wide in an 1,100 px output
+    block = (
+        "X: (n, p)\nY: (n, k)\nW: (p, k)\nb: (k,)\nZ = X @ W + b\n"
+        "nll = sum(log(1 + exp(Z) @ ones(k))) - sum(Y * Z)"
+    )
+    mixed = derive(block, wrt=["W", "b"]).second_derivative("W", "b")
+    text = mixed.latex()
+    lines = (
+        text.removeprefix("\\begin{aligned}\n").removesuffix("\n\\end{aligned}").split(" \\\\\n")
+    )
+    assert len(lines) > 3  # continuation lines
+    for line in lines:
+        math = line.split("&=", 1)[-1].split("&\\qquad", 1)[-1].split(" && ", 1)[0]
+        assert latex_width(math) <= mixed.LINE_BUDGET + 2, line
