@@ -116,7 +116,7 @@ def _notebook_for_test(workdir: Path, default: Path = DEMO) -> Path:
 #: the ferry demo shows a mixed second derivative (once 1,785 px wide)
 MIXED_DEMO = ROOT / "notebooks_demo" / "ferry_ticket_choice.ipynb"
 #: blocks of our own whose layout went wrong in a browser once: a Kalman update whose scaled
-#: trace was one 1,168 px line, and a rule label ("0 at x = 0") wrapped inside its equation
+#: trace was one 1,168 px line, and rule labels wrapped inside an equation or a word
 LAYOUT_BLOCKS = {
     "kalman": (
         "%%derive P\nF: (m, m)\nP: (m, m) spd\nQ: (m, m) spd\nH: (q, m)\nR: (q, q) spd\n"
@@ -126,6 +126,11 @@ LAYOUT_BLOCKS = {
     "factorization": (
         "%%derive W H --no-check\nV: (m, n) positive\nW: (m, r)\nH: (r, n)\nR = V - W @ H\n"
         "loss = 0.5 * norm(R)**2 + 0.1 * sum(abs(W))"
+    ),
+    # the complex gradient's rule wrapped "left-" / "hand side" at its hyphen
+    "beamformer": (
+        "%%derive w --no-check\nR: (m, m) hpd\na: (m,) complex\nw: (m,) complex\n"
+        "power = real(w.conj() @ R @ w) + 10 * abs(w.conj() @ a - 1)**2"
     ),
 }
 

@@ -65,6 +65,8 @@ def test_an_equation_in_a_rules_words_wraps_as_one_word():
     # the abs rule's note "0 at x = 0" was wrapped between "x" and "= 0" in the browser
     words = "norm rule; chain rule for abs (sign(x); 0 at x = 0, the smallest subgradient)"
     assert "x\u00a0=\u00a00" in rule_html(words)
+    # and "left-hand" did not break at its hyphen (the complex gradient's rule, in the browser)
+    assert "left\u2011hand side" in rule_html("as the left-hand side says")
     for width in range(8, 60):
         for line in _wrap(words, width):
             assert not line.rstrip("}").endswith(" x") and "{= 0" not in line, (width, line)

@@ -297,6 +297,7 @@ def rule_math(words: str) -> str:
 
 #: an equation inside a rule's words ("0 at x = 0"): it wraps as one word
 _WORDS_EQUATION = re.compile(r"(?<=\S) = (?=\S)")
+_WORD_HYPHEN = re.compile(r"(?<=[A-Za-z])-(?=[A-Za-z])")
 
 
 def rule_html(words: str) -> str:
@@ -304,7 +305,9 @@ def rule_html(words: str) -> str:
     parts = []
     for kind, value in rule_segments(words):
         if kind == "text":
-            parts.append(html.escape(_WORDS_EQUATION.sub("\u00a0=\u00a0", value)))
+            value = _WORDS_EQUATION.sub("\u00a0=\u00a0", value)
+            # a hyphenated word ("left-hand") wraps as one word: a non-breaking hyphen
+            parts.append(html.escape(_WORD_HYPHEN.sub("\u2011", value)))
         else:
             parts.append(rf"<span class='gradwright-rule-math'>\({html.escape(value)}\)</span>")
     return "".join(parts)
