@@ -12,7 +12,7 @@ from dataclasses import dataclass
 
 from . import expr as E
 from .calculus import adjoint, differential, expand_once, has_pending, kronecker_form
-from .errors import FormulaError, NotSupportedError, ShapeError
+from .errors import FormulaError, NotSupportedError, ShapeError, frame_named
 from .language import Block
 from .matrix_checks import adjust_samples
 from .matrix_functions import NODES as _MATRIX_NODES
@@ -726,7 +726,7 @@ def _api_boundary(method):
             what = method.__name__.replace("_", " ")
             raise NotSupportedError(f"not supported yet: {what} for this block ({err})") from None
 
-    return wrapper
+    return frame_named(wrapper, f"Derivation.{method.__name__}")
 
 
 for _name in (

@@ -11,6 +11,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from ..errors import frame_named
+
 __all__ = ["Injected", "Packer", "injections"]
 
 _KW = inspect.Parameter.KEYWORD_ONLY
@@ -60,10 +62,7 @@ def _named(fn, name: str, positional, keywords, doc: str):
             raise err.with_traceback(None) from None
 
     wrapper.__name__ = wrapper.__qualname__ = name
-    try:  # a traceback names the frame as the user knows it: grad_loss, not _named.<locals>...
-        wrapper.__code__ = wrapper.__code__.replace(co_name=name, co_qualname=name)
-    except (TypeError, ValueError):  # Python 3.10 has no co_qualname
-        wrapper.__code__ = wrapper.__code__.replace(co_name=name)
+    frame_named(wrapper, name)  # a traceback says grad_loss, not _named.<locals>.wrapper
     wrapper.__doc__ = doc
     wrapper.__module__ = "__main__"
     wrapper.__signature__ = inspect.Signature(
