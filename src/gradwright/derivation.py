@@ -24,8 +24,9 @@ from .sampling import default_sizes, needs_positive, sample_inputs
 from .simplify import simplify
 
 MAX_STEPS = 40
-#: the widest line of a printed step, in ems, before it breaks at an operator
-LINE_BUDGET = 36.0
+#: the widest line of a printed step, in ems, before it breaks at an operator (with the rule
+#: column beside it, a line fits an A4 page with 1.5 cm margins: to_latex is checked by pdflatex)
+LINE_BUDGET = 30.0
 #: Hessian-vector products are generated only for gradients up to this size (written out)
 MAX_HESSIAN_GRADIENT = 2_000
 
@@ -306,13 +307,13 @@ class Derivation:
 
     def latex(self) -> str:
         """The derivation as one aligned environment, rule names beside each line."""
-        from .printing.layout import broken_lines, rule_math
+        from .printing.layout import broken_lines, rule_stack
 
         lines = []
         prev_lhs = None
         for step in self.steps[1:]:
             lhs = step.lhs_latex if step.lhs_latex != prev_lhs else ""
-            rule = f" && {rule_math(step.rule)}" if step.rule else ""
+            rule = f" && {rule_stack(step.rule)}" if step.rule else ""  # wrapped to fit a page
             first, *rest = broken_lines(step.expr, LINE_BUDGET)
             lines.append(f"{lhs} &= {first}{rule}")
             lines.extend(rf"&\qquad {more}" for more in rest)

@@ -87,3 +87,18 @@ def test_a_mixed_second_derivative_breaks_over_lines():
     for line in lines:
         math = line.split("&=", 1)[-1].split("&\\qquad", 1)[-1].split(" && ", 1)[0]
         assert latex_width(math) <= mixed.LINE_BUDGET + 2, line
+
+
+@pytest.mark.parametrize("budget", [18.0, 24.0, 30.0, MATH_BUDGET])
+def test_every_broken_line_closes_its_braces(budget):
+    # a long numerator over n o was broken inside \frac{...}{n \cdot o}: each line left a brace
+    # open, which MathJax shows as an error and pdflatex refuses
+    block = (
+        "X: (n, d)\nY: (n, o)\nW1: (d, h)\nb1: (h,)\nW2: (h, o)\nH = tanh(X @ W1 + b1)\n"
+        "loss = mean((H @ W2 - Y)**2)"
+    )
+    for text, wrt in ((block, ["W1", "b1", "W2"]), (KALMAN, ["P"]), (LONG, ["W1"])):
+        for step in derive(text, wrt=wrt).steps:
+            for line in broken_lines(step.expr, budget):
+                stripped = line.replace(r"\{", "").replace(r"\}", "")
+                assert stripped.count("{") == stripped.count("}"), line

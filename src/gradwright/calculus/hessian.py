@@ -117,10 +117,10 @@ class MixedDerivative:
     target: str
 
     #: the widest line in ems: long second derivatives break at operators, as derivations do
-    LINE_BUDGET = 30.0
+    LINE_BUDGET = 22.0  # its left-hand sides are wider than a derivation's
 
     def latex(self) -> str:
-        from ..printing.layout import broken_lines, rule_math
+        from ..printing.layout import broken_lines, rule_stack
 
         f, u, v = symbol_latex(self.target), symbol_latex(self.first), symbol_latex(self.second)
         rows = [
@@ -143,7 +143,7 @@ class MixedDerivative:
         lines = []
         for lhs, expr, rule in rows:
             first, *rest = broken_lines(expr, self.LINE_BUDGET)
-            lines.append(f"{lhs} &= {first}" + (f" && {rule_math(rule)}" if rule else ""))
+            lines.append(f"{lhs} &= {first}" + (f" && {rule_stack(rule)}" if rule else ""))
             lines.extend(rf"&\qquad {more}" for more in rest)
         return "\\begin{aligned}\n" + " \\\\\n".join(lines) + "\n\\end{aligned}"
 

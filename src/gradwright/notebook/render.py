@@ -7,7 +7,6 @@ the terminal alike.
 from __future__ import annotations
 
 import html
-import re
 
 __all__ = [
     "SHOW_CHOICES",
@@ -49,38 +48,9 @@ MATH_BUDGET = 38.0
 
 def _wrap(words: str, width: int = RULE_WIDTH) -> list[str]:
     """Lines of LaTeX for a rule: words wrap between words, a formula is never split."""
-    from gradwright.printing.layout import rule_segments, text_escape
+    from gradwright.printing.layout import rule_lines
 
-    units: list[tuple[str, str, int]] = []  # (LaTeX, kind, visible length)
-    for kind, value in rule_segments(words):
-        if kind == "math":
-            units.append((value, "math", len(value) // 2))
-            continue
-        for word in re.findall(r"\S+(?: = \S+)*\s*", value):  # "x = 0" is one word
-            units.append((word, "text", len(word)))
-    lines: list[list[tuple[str, str]]] = [[]]
-    used = 0
-    for latex, kind, size in units:
-        if used + size > width and lines[-1]:
-            lines.append([])
-            used = 0
-        lines[-1].append((latex, kind))
-        used += size
-    out = []
-    for line in lines:
-        parts, words_run = [], ""
-        for latex, kind in line:
-            if kind == "text":
-                words_run += latex
-                continue
-            if words_run:
-                parts.append(f"\\text{{{text_escape(words_run)}}}")
-                words_run = ""
-            parts.append(latex)
-        if words_run.strip():
-            parts.append(f"\\text{{{text_escape(words_run.rstrip())}}}")
-        out.append(" ".join(parts))
-    return [line for line in out if line]
+    return rule_lines(words, width)
 
 
 def rule_latex(words: str) -> str:
