@@ -71,3 +71,11 @@ def test_an_array_target_says_its_derivative_is_a_jacobian():
         assert "Jacobian" in out.stdout and "never builds it" in out.stdout
     out = run("derive", str(BLOCKS / "store_demand.gw"), "--wrt", "U")
     assert "Jacobian" not in out.stdout
+
+
+def test_the_derivation_writes_each_left_hand_side_once():
+    out = run("derive", str(BLOCKS / "store_demand.gw"), "--wrt", "U", "V")
+    lines = out.stdout.split("\n\n")[0].splitlines()[1:]
+    assert lines[0].startswith("dloss = d(")
+    assert all(line.startswith("      = ") for line in lines[1:6]), lines
+    assert lines[6].startswith("∂loss/∂U = ") and lines[7].startswith("∂loss/∂V = ")

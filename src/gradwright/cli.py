@@ -71,7 +71,7 @@ def main(argv: list[str] | None = None) -> int:
         d = derive(text, wrt=args.wrt, sizes=sizes or None)
         parts = []
         if args.show == "steps":
-            parts.append("Derivation\n" + d.text_steps())
+            parts.append("Derivation\n" + _aligned(d.text_steps()))
             parts.append("Shapes\n" + _table(d.shape_table()))
         if args.show in ("steps", "result"):
             parts.append("Result\n" + _result(d) + _jacobian_note(d))
@@ -89,6 +89,19 @@ def main(argv: list[str] | None = None) -> int:
     except BrokenPipeError:  # the reader (e.g. `head`) stopped early
         sys.stderr.close()
     return 0
+
+
+def _aligned(steps: str) -> str:
+    """The left-hand side written once, the following lines starting under its `=`, as on
+    paper (and in the notebook): `dloss = ...` then `      = ...`."""
+    out, previous = [], None
+    for line in steps.splitlines():
+        lhs, sep, rhs = line.partition(" = ")
+        if sep and lhs == previous:
+            line = " " * len(lhs) + " = " + rhs
+        previous = lhs if sep else None
+        out.append(line)
+    return "\n".join(out)
 
 
 def _jacobian_note(d) -> str:
