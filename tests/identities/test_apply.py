@@ -360,6 +360,8 @@ def test_most_identities_are_offered_as_rewrites():
 
 
 def test_a_match_states_its_conditions_in_words():
-    block = "A: (n, n) invertible\nU: (n, k)\nC: (k, k) invertible\nV: (k, n)\nf = inv(A + U @ C @ V)"
+    block = (
+        "A: (n, n) invertible\nU: (n, k)\nC: (k, k) invertible\nV: (k, n)\nf = inv(A + U @ C @ V)"
+    )
     (woodbury,) = [m for m in applicable(block) if m.identity.id == "woodbury-identity"]
     assert woodbury.conditions == "A, C and A + U @ C @ V invertible"
