@@ -633,6 +633,26 @@ class _GwXp:
     def gw_cho_solve(self, factor, b):
         return self.cho_solve(factor, b)
 
+    # the in-place arithmetic of the NumPy code (printing/inplace.py), computed as written:
+    # JAX arrays are immutable and other libraries' temporaries are theirs to manage
+    def gw_imul(self, x, y):
+        return x * y
+
+    def gw_iadd(self, x, y):
+        return x + y
+
+    def gw_isub(self, x, y):
+        return x - y
+
+    def gw_idiv(self, x, y):
+        return x / y
+
+    def gw_rsub(self, y, x):
+        return y - x
+
+    def gw_rdiv(self, y, x):
+        return y / x
+
     # --- spectral functions and factorizations of symmetric matrices (PyTorch, JAX, CuPy) ----
     # the same formulas as the NumPy helpers; expm, sqrtm, logm and the matrix equations have
     # no counterpart here and are refused by name
@@ -731,6 +751,9 @@ class _GwXp:
         ns = self.ns
         z = ns.exp(a - ns.max(a, axis=axis, keepdims=True))
         return z / ns.sum(z, axis=axis, keepdims=True)
+
+    def gw_softmax_axis_into(self, a, axis):
+        return self.gw_softmax_axis(a, axis)
 
     def gw_log_softmax_axis(self, a, axis):
         ns = self.ns
