@@ -77,6 +77,14 @@ def {name}(x, y):
 
 #: runtime helpers of the generated module (added to printing.runtime.HELPERS)
 INPLACE_HELPERS = {name: _helper_code(name) for name in _UFUNC}
+INPLACE_HELPERS["_gw_apply"] = '''
+def _gw_apply(f, x):
+    """f(x) for a NumPy ufunc f of one argument, written into x: an array of this expression
+    that nothing else reads (only a real floating x: f keeps its dtype)."""
+    if type(x) is np.ndarray and x.dtype.kind == "f":
+        return f(x, out=x)
+    return f(x)
+'''
 
 
 def _is_fresh(node: ast.AST) -> bool:
@@ -203,6 +211,9 @@ class _InPlace(ast.NodeTransformer):
     def visit_Call(self, node):
         self.generic_visit(node)
         f = node.func
+        if _is_fresh(node) and isinstance(f, ast.Attribute) and self.writable(node.args[0], node):
+            self.used.add("_gw_apply")  # np.tanh(X @ W + b): the tanh in the same array
+            return ast.copy_location(_call("_gw_apply", f, node.args[0]), node)
         into = INTO_VARIANTS.get(f.id) if isinstance(f, ast.Name) else None
         if into is not None and node.args and self.writable(node.args[0], node):
             node.func = ast.Name(into, ast.Load())
@@ -233,6 +244,8 @@ def rewrite_line(text: str, scalars: set, owned: set = frozenset()) -> tuple[str
     ('_gw_imul(X.T @ r, 2)', {'_gw_imul'})
     >>> rewrite_line("A @ V - T", set())[0]
     '_gw_isub(A @ V, T)'
+    >>> rewrite_line("np.tanh(X @ W + b)", set())[0]
+    '_gw_apply(np.tanh, _gw_iadd(X @ W, b))'
     >>> rewrite_line("2 * c * X", {"c"})[0]
     '2 * c * X'
     >>> rewrite_line("2 * c * A * (G - S)", {"c"})[0]

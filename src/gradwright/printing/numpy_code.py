@@ -33,11 +33,14 @@ from .costmodel import (  # noqa: F401 - public names kept importable from here
 )
 from .inplace import INPLACE_HELPERS, rewrite_function
 from .runtime import FUNC_CODE, HELPERS  # noqa: F401
+from .shared_eigh import HELPERS as SHARED_EIGH_HELPERS
+from .shared_eigh import shared_matrices
 from .structure import known_spd
 from .text import TextPrinter
 
 HELPERS.update(AXIS_HELPERS)
 HELPERS.update(INPLACE_HELPERS)
+HELPERS.update(SHARED_EIGH_HELPERS)
 HELPERS.update(spec.helper for spec in EXTRA_ENTRYWISE.values() if spec.helper is not None)
 
 # ---------------------------------------------------------------------------------------------
@@ -576,6 +579,8 @@ class CodeGen:
 
     def function(self, spec: FunctionSpec) -> str:
         self.temps, self.lines, self.cholesky = {}, [], {}
+        # one eigh per matrix whose spectrum the function needs twice (printing/shared_eigh.py)
+        self.eighs, self.eigh_shared = {}, shared_matrices(o.expr for o in spec.outputs)
         printer = NumpyPrinter(self)
         direction = spec.direction
         if direction is not None:

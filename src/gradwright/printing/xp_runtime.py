@@ -653,6 +653,9 @@ class _GwXp:
     def gw_rdiv(self, y, x):
         return y / x
 
+    def gw_apply(self, f, x):
+        return f(x)
+
     # --- spectral functions and factorizations of symmetric matrices (PyTorch, JAX, CuPy) ----
     # the same formulas as the NumPy helpers; expm, sqrtm, logm and the matrix equations have
     # no counterpart here and are refused by name
@@ -693,6 +696,19 @@ class _GwXp:
         """U Diag(g) U^T: the gradient of a function of eigvalsh(S) with weights g."""
         _w, u = self.gw_eigh(a, label, "eigvalsh")
         return (u * g) @ u.T
+
+    # from one decomposition (w, u) shared by a function (printing/shared_eigh.py)
+    def gw_eigvalsh_jvp_of(self, wu, e, label):
+        return self.ns.sum(wu[1] * ((0.5 * (e + e.T)) @ wu[1]), axis=0)
+
+    def gw_eigvalsh_vjp_of(self, wu, g, label):
+        return (wu[1] * g) @ wu[1].T
+
+    def gw_matrix_function_of(self, name, *args):
+        self.unavailable(name)
+
+    def gw_spectral_frechet_of(self, name, *args):
+        self.unavailable(f"the derivative of {name}")
 
     def gw_cholesky(self, a, label):
         self._no_dask("cholesky")
