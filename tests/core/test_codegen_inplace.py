@@ -76,7 +76,7 @@ def test_function_pass_owns_only_temporaries_read_by_one_later_line():
         "    _o1 = _t5 - Y",
         "    _o2 = _t5 + Y",
     ]
-    out, used = rewrite_function(lines, "    return _t2, _t4, _o1, _o2", set())
+    out, _used = rewrite_function(lines, "    return _t2, _t4, _o1, _o2", set())
     assert out[1] == "    _t2 = _gw_isub(_t1, Y)"
     assert out[3] == "    _t4 = _t3 * 2"
     assert out[5] == "    _o1 = _t5 - Y" and out[6] == "    _o2 = _t5 + Y"
@@ -88,11 +88,21 @@ def test_function_pass_owns_only_temporaries_read_by_one_later_line():
 # --- the runtime helpers -----------------------------------------------------------------------
 
 
-def _helpers() -> dict:
+def _helpers(minimum: int | None = 0) -> dict:
     space = {"np": np}
     for name in sorted(INPLACE_HELPERS):
         exec(HELPERS[name], space)
+    if minimum is not None:
+        space["_GW_INPLACE_MIN"] = minimum
     return space
+
+
+def test_small_arrays_take_the_plain_operator():
+    h = _helpers(minimum=None)
+    x = np.ones(10)
+    assert h["_gw_imul"](x, 2.0) is not x and np.all(x == 1)
+    big = np.ones(h["_GW_INPLACE_MIN"])
+    assert h["_gw_imul"](big, 2.0) is big and np.all(big == 2)
 
 
 def test_helpers_write_in_place_only_when_shape_and_dtype_fit():

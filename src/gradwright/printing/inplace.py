@@ -56,7 +56,7 @@ def _helper_code(name: str) -> str:
         return f'''
 def {name}(y, x):
     """y {op} x, written into x: an array of this expression that nothing else reads."""
-    if type(x) is np.ndarray:
+    if type(x) is np.ndarray and x.size >= _GW_INPLACE_MIN:
         try:
             return np.{ufunc}(y, x, out=x, casting="safe")
         except (TypeError, ValueError):  # the result does not fit x (shape or dtype)
@@ -66,7 +66,7 @@ def {name}(y, x):
     return f'''
 def {name}(x, y):
     """x {op} y, written into x: an array of this expression that nothing else reads."""
-    if type(x) is np.ndarray:
+    if type(x) is np.ndarray and x.size >= _GW_INPLACE_MIN:
         try:
             return np.{ufunc}(x, y, out=x, casting="safe")
         except (TypeError, ValueError):  # the result does not fit x (shape or dtype)
@@ -77,11 +77,17 @@ def {name}(x, y):
 
 #: runtime helpers of the generated module (added to printing.runtime.HELPERS)
 INPLACE_HELPERS = {name: _helper_code(name) for name in _UFUNC}
+INPLACE_HELPERS["_GW_INPLACE_MIN"] = """
+# arrays from this many entries on are written in place: from 128 KiB of float64 on, glibc's
+# malloc takes fresh pages from the system for every new array (its default mmap threshold,
+# from memory); below, a new array is cheap and the plain operator is the faster call
+_GW_INPLACE_MIN = 16384
+"""
 INPLACE_HELPERS["_gw_apply"] = '''
 def _gw_apply(f, x):
     """f(x) for a NumPy ufunc f of one argument, written into x: an array of this expression
     that nothing else reads (only a real floating x: f keeps its dtype)."""
-    if type(x) is np.ndarray and x.dtype.kind == "f":
+    if type(x) is np.ndarray and x.size >= _GW_INPLACE_MIN and x.dtype.kind == "f":
         return f(x, out=x)
     return f(x)
 '''
@@ -240,8 +246,9 @@ def rewrite_line(text: str, scalars: set, owned: set = frozenset()) -> tuple[str
     (defined by arithmetic): this line may write into one where all its reads are evaluated
     before the write.
 
-    >>> rewrite_line("2 * (X.T @ r)", set())
-    ('_gw_imul(X.T @ r, 2)', {'_gw_imul'})
+    >>> text, helpers = rewrite_line("2 * (X.T @ r)", set())
+    >>> text, sorted(helpers)
+    ('_gw_imul(X.T @ r, 2)', ['_GW_INPLACE_MIN', '_gw_imul'])
     >>> rewrite_line("A @ V - T", set())[0]
     '_gw_isub(A @ V, T)'
     >>> rewrite_line("np.tanh(X @ W + b)", set())[0]
@@ -261,6 +268,7 @@ def rewrite_line(text: str, scalars: set, owned: set = frozenset()) -> tuple[str
     new = pass_.visit(tree)
     if not pass_.used:
         return text, set()
+    pass_.used.add("_GW_INPLACE_MIN")
     return ast.unparse(ast.fix_missing_locations(new)), pass_.used
 
 
