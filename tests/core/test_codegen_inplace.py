@@ -249,3 +249,23 @@ def test_float32_and_mixed_precision_arguments(dtype):
         assert all(g.dtype == np.float32 for g in grads)
         for g, w in zip(grads, grads64):
             np.testing.assert_allclose(g, w, rtol=2e-4, atol=2e-4)
+
+
+def _jax_common(A, X, Y, c):
+    return jnp.sum(jnp.exp(c * A * X - c * A * Y))
+
+
+def test_common_factors_of_a_sum_are_taken_out():
+    """c A X - c A Y is computed as c A (X - Y): one entrywise product fewer, in place."""
+    d = derive("A: (n, k)\nX: (n, k)\nY: (n, k)\nc: ()\nf = sum(exp(c * A * X - c * A * Y))", "X")
+    body = d.source()
+    body = body[body.index("def value_and_gradient(") :]
+    assert "_gw_imul(_gw_imul(X - Y, A), c)" in body
+    rng = np.random.default_rng(8)
+    a = {k: rng.standard_normal((4, 3)) for k in "AXY"}
+    a["c"] = 0.6
+    value, grad = d.value_and_gradient_function()(**a)
+    ja = {k: jnp.asarray(v) for k, v in a.items()}
+    np.testing.assert_allclose(value, float(_jax_common(**ja)), rtol=1e-12)
+    want = jax.grad(lambda x: _jax_common(**{**ja, "X": x}))(ja["X"])
+    np.testing.assert_allclose(grad, np.asarray(want), rtol=1e-10, atol=1e-12)
