@@ -30,6 +30,11 @@ from gradwright.printing.runtime import HELPERS
         ("np.tanh(X @ W + b)", "_gw_apply(np.tanh, _gw_iadd(X @ W, b))"),
         # numbers are multiplied together first, the arrays go into one new array
         ("2 * c * A * B", "_gw_imul(A * B, 2 * c)"),
+        # a call-time choice: the branches are rewritten, the flop counts compared are not
+        (
+            '(X @ Y - Z if _dims["n"] * _dims["k"] < 2 * _dims["n"] else Z - X @ Y)',
+            "_gw_isub(X @ Y, Z) if _dims['n'] * _dims['k'] < 2 * _dims['n'] else _gw_rsub(Z, X @ Y)",
+        ),
     ],
 )
 def test_rewrites_operations_on_new_arrays(text, want):
@@ -48,6 +53,7 @@ def test_rewrites_operations_on_new_arrays(text, want):
         "_t1 * _t2",  # named temporaries (others may read them later)
         "2 * c",  # numbers
         "A @ B",  # a product is never written into its own operands
+        '_dims["n"] * _dims["k"] * 2 + min(_dims["n"] * 3, 4)',  # sizes are numbers
     ],
 )
 def test_never_writes_into_what_it_does_not_own(text):

@@ -99,6 +99,8 @@ def _is_fresh(node: ast.AST) -> bool:
         return True
     if isinstance(node, ast.UnaryOp) and isinstance(node.op, ast.USub):
         return True
+    if isinstance(node, ast.IfExp):  # a call-time choice between two new arrays
+        return _is_fresh(node.body) and _is_fresh(node.orelse)
     if isinstance(node, ast.Call) and not node.keywords and len(node.args) == 1:
         f = node.func
         return (
@@ -124,6 +126,10 @@ def _is_scalar(node: ast.AST, scalars: set) -> bool:
         return _is_scalar(node.operand, scalars)
     if isinstance(node, ast.BinOp):
         return _is_scalar(node.left, scalars) and _is_scalar(node.right, scalars)
+    if isinstance(node, ast.Subscript):  # a dim size: _dims["n"]
+        return isinstance(node.value, ast.Name) and node.value.id == "_dims"
+    if isinstance(node, ast.Call) and isinstance(node.func, ast.Name):
+        return node.func.id in ("min", "max") and all(_is_scalar(a, scalars) for a in node.args)
     return False
 
 
@@ -224,6 +230,11 @@ class _InPlace(ast.NodeTransformer):
         if into is not None and node.args and self.writable(node.args[0], node):
             node.func = ast.Name(into, ast.Load())
             self.used.update((into, DEPENDS[into]))
+        return node
+
+    def visit_IfExp(self, node):
+        # the condition of a call-time choice compares flop counts (numbers): left as written
+        node.body, node.orelse = self.visit(node.body), self.visit(node.orelse)
         return node
 
     def visit_Lambda(self, node):  # pragma: no cover - generated lines hold no lambdas
