@@ -94,3 +94,14 @@ def test_an_unsymmetric_argument_is_still_refused():
     d = derive(SPECTRUM, wrt="S")
     with pytest.raises(ValueError, match="S is not symmetric"):
         d.value_and_gradient_function()(S=np.arange(9.0).reshape(3, 3))
+
+
+def test_other_libraries_refuse_by_the_same_name():
+    torch = pytest.importorskip("torch")
+    d = derive(SPECTRUM, wrt="S")
+    S = torch.tensor(_symmetric(3, 6))
+    with pytest.raises(NotImplementedError, match=r"^eigvalsh_vjp_jvp is not available"):
+        d.hvp_function(var="S")(torch.eye(3, dtype=torch.float64), S=S)
+    value, grad = d.value_and_gradient_function()(S=S)  # computed with torch, one eigh
+    want = d.value_and_gradient_function()(S=S.numpy())[1]
+    np.testing.assert_allclose(grad.numpy(), want, rtol=1e-12)

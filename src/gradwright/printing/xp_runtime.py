@@ -704,6 +704,9 @@ class _GwXp:
     def gw_eigvalsh_vjp_of(self, wu, g, label):
         return (wu[1] * g) @ wu[1].T
 
+    def gw_eigvalsh_vjp_jvp_of(self, *args):
+        self.unavailable("eigvalsh_vjp_jvp")  # as without the shared decomposition
+
     def gw_matrix_function_of(self, name, *args):
         self.unavailable(name)
 
