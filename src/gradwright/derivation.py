@@ -91,6 +91,21 @@ class Derivation:
         self._vars = {v: block.declarations[v] for v in wrt}
         self._functions: dict | None = None
         self._source: str | None = None
+        self._warn_nonfinite = False
+
+    @property
+    def warn_nonfinite(self) -> bool:
+        """Whether generated functions warn on an array result with inf or nan entries (a
+        number result always warns); settable, also after functions were made."""
+        return self._warn_nonfinite
+
+    @warn_nonfinite.setter
+    def warn_nonfinite(self, on: bool) -> None:
+        self._warn_nonfinite = bool(on)
+        spaces = [self._functions, *self.__dict__.get("_array_api_namespaces", {}).values()]
+        for ns in spaces:
+            if ns is not None and "_GW_WARN_NONFINITE" in ns:
+                ns["_GW_WARN_NONFINITE"] = self._warn_nonfinite
 
     # --- description -----------------------------------------------------------------------------
 
@@ -569,6 +584,8 @@ class Derivation:
             linecache.cache[filename] = (len(source), None, source.splitlines(True), filename)
             # our own printer wrote this text from the tree; no user text is executed
             exec(compile(source, filename, "exec"), ns)  # noqa: S102
+            if "_GW_WARN_NONFINITE" in ns:
+                ns["_GW_WARN_NONFINITE"] = self._warn_nonfinite
             self._functions = ns
         return self._functions
 
@@ -820,7 +837,10 @@ def _cotangent(shape) -> E.Expr:
 
 
 def _ret(name: str, shape) -> str:
-    return f"np.asarray({name})[()]" if E.is_scalar_shape(shape) else name
+    if not E.is_scalar_shape(shape):
+        return name
+    # a NumPy scalar as it is (the common case, and no call); a 0-d array or number made one
+    return f"({name} if isinstance({name}, np.generic) else np.asarray({name})[()])"
 
 
 def _size_code(shape) -> str:
