@@ -211,3 +211,16 @@ def test_reml_hvp_and_jvp_against_jax():
     np.testing.assert_allclose(ns["hvp_su"](1.0, **a), float(hess[1][1]), rtol=1e-8)
     want = float(jax.grad(f, argnums=1)(ja["se"], ja["su"]))
     np.testing.assert_allclose(ns["jvp_su"](1.0, **a), want, rtol=1e-8)
+
+
+def test_float32_stays_float32_through_the_factorizations():
+    d = derive(REML, wrt=["se", "su"])
+    a = _reml_data(20, 3, 4)
+    a32 = {k: (v.astype(np.float32) if isinstance(v, np.ndarray) else v) for k, v in a.items()}
+    v64, g64 = d.value_and_gradient_function()(**a)
+    v32, g32 = d.value_and_gradient_function()(**a32)
+    assert np.asarray(v32).dtype == np.float32 and all(
+        np.asarray(g).dtype == np.float32 for g in g32
+    )
+    np.testing.assert_allclose(v32, v64, rtol=1e-4)
+    np.testing.assert_allclose(g32, g64, rtol=1e-4)
