@@ -275,3 +275,15 @@ def test_common_factors_of_a_sum_are_taken_out():
     np.testing.assert_allclose(value, float(_jax_common(**ja)), rtol=1e-12)
     want = jax.grad(lambda x: _jax_common(**{**ja, "X": x}))(ja["X"])
     np.testing.assert_allclose(grad, np.asarray(want), rtol=1e-10, atol=1e-12)
+
+
+def test_vector_lines_are_left_as_written():
+    """A vector is cheap to allocate and a helper call shows at small sizes: least squares'
+    gradient is the plain expression (the in-place pass rewrites matrix lines only)."""
+    from gradwright import derive
+
+    d = derive("X: (n, p)\ny: (n,)\nw: (p,)\nf = sum((X @ w - y)**2)", wrt="w")
+    source = d.source()
+    assert "_gw_i" not in source and "_gw_rsub" not in source, source
+    m = derive("X: (n, p)\nW: (p, k)\nY: (n, k)\nf = sum((X @ W - Y)**2)", wrt="W").source()
+    assert "_gw_isub(X @ W, Y)" in m  # a matrix line still is rewritten

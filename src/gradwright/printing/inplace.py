@@ -286,9 +286,12 @@ def rewrite_line(text: str, scalars: set, owned: set = frozenset()) -> tuple[str
 _ASSIGN = re.compile(r"^    ([A-Za-z_]\w*) = (.+)$")
 
 
-def rewrite_function(lines: list, tail: str, scalars: set) -> tuple[list, set]:
+def rewrite_function(
+    lines: list, tail: str, scalars: set, keep: set = frozenset()
+) -> tuple[list, set]:
     """The body lines of one generated function with the in-place pass applied to every
-    assignment; `tail` is the code after them (returns, loops), which reads what it names.
+    assignment but those of the names in `keep`; `tail` is the code after them (returns,
+    loops), which reads what it names.
 
     A named array is *owned* by the one line that reads it when it was defined by
     arithmetic (a new array, no view of anything) and no other line nor the tail mentions
@@ -306,9 +309,10 @@ def rewrite_function(lines: list, tail: str, scalars: set) -> tuple[list, set]:
         if m is None:
             continue
         name, text = m.groups()
-        text, helpers = rewrite_line(text, scalars, owned_at.get(i, set()))
-        out[i] = f"    {name} = {text}"
-        used |= helpers
+        if name not in keep:
+            text, helpers = rewrite_line(text, scalars, owned_at.get(i, set()))
+            out[i] = f"    {name} = {text}"
+            used |= helpers
         readers = [j for j in mentions.get(name, []) if j != i]
         if (
             len(readers) == 1

@@ -707,7 +707,11 @@ class CodeGen:
         if self.in_place:  # arithmetic written into the arrays this function owns
             scalars = {n for n, s in self.symbols.items() if E.is_scalar_shape(s.shape)}
             scalars.update(v for k, v in self.temps.items() if E.is_scalar_shape(k.shape))
-            self.lines, used = rewrite_function(self.lines, "\n".join(tail), scalars)
+            # a vector is cheap to allocate, and a helper call shows at small sizes: only
+            # lines that compute a matrix are rewritten
+            small = {v for k, v in self.temps.items() if not E.is_matrix_shape(k.shape)}
+            small.update(o.name for o in spec.outputs if not E.is_matrix_shape(o.shape))
+            self.lines, used = rewrite_function(self.lines, "\n".join(tail), scalars, small)
             self.helpers.update(used)
         body = head + self.lines + tail
         self.directions = {}
