@@ -39,6 +39,7 @@ def derive(
     shapes: dict | None = None,
     sizes: dict | None = None,
     parameterize: dict | None = None,
+    warn_nonfinite: bool = False,
 ) -> Derivation:
     """Derive a block (or one expression with `shapes`) with respect to the variables `wrt`.
 
@@ -47,6 +48,10 @@ def derive(
     `parameterize` fits variables through unconstrained ones: `{"S": "cholesky"}` makes the
     variable `S_chol` (lower-triangular, S = S_chol S_cholᵀ), `{"s": "log"}` makes `log_s`
     (s = exp(log_s)); the derivation then shows the chain rule through S or s.
+    `warn_nonfinite=True` makes the generated functions warn when an array result (a gradient,
+    a product) has an inf or nan entry; a number result (a value) is always checked. Off by
+    default, like NumPy, which propagates a nan it is given without a word: the test costs one
+    BLAS call per result, which shows on small problems.
     """
     from .expr import expanded_size
     from .language import parse_block
@@ -110,9 +115,10 @@ def derive(
         sizes = checked
     from .complex_derivation import ComplexDerivation, is_complex_block
 
-    if is_complex_block(block):
-        return ComplexDerivation(block, tuple(seen), sizes)
-    return Derivation(block, tuple(seen), sizes)
+    kind = ComplexDerivation if is_complex_block(block) else Derivation
+    out = kind(block, tuple(seen), sizes)
+    out.warn_nonfinite = bool(warn_nonfinite)
+    return out
 
 
 def load_ipython_extension(ipython):  # pragma: no cover - exercised by the notebook tests

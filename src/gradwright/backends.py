@@ -12,7 +12,6 @@ own module and speed), array-API modules per library, and which dims a Dask inpu
 from __future__ import annotations
 
 import inspect
-import types
 
 import numpy as np
 
@@ -21,11 +20,6 @@ from .printing.array_api_code import BACKENDS, NUMPY_ONLY_PREFIXES, translate
 
 #: the size the cost model assumes for a dim that a Dask input chunks (rows past one machine)
 LARGE = 10**9
-
-# argument types that go straight to the NumPy module, as before any other library was known
-_PLAIN = frozenset(
-    {np.ndarray, float, int, bool, complex, list, tuple, np.float64, np.float32, np.int64}
-)
 
 
 def _library(value):
@@ -57,6 +51,7 @@ def _array_api_namespace(derivation, large: tuple) -> dict:
         # our own printer wrote this text from the tree (rewritten by array_api_code); no user
         # text is executed
         exec(compile(source, f"<gradwright {derivation.target} array api>", "exec"), ns)  # noqa: S102
+        ns["_GW_WARN_NONFINITE"] = derivation.warn_nonfinite
         cache[large] = ns
     return ns
 
@@ -75,15 +70,22 @@ def chunked_dims(derivation, arrays: dict) -> tuple:
     return tuple(sorted(out))
 
 
-def _route(derivation, name: str, np_fn, args: tuple, kwargs: dict):
-    libraries = {_library(v) for v in (*args, *kwargs.values())} - {None, "numpy"}
-    if not libraries:
-        return np_fn(*args, **kwargs)
-    large = chunked_dims(derivation, kwargs) if "dask" in libraries else ()
-    ns = _array_api_namespace(derivation, large)
-    if name.startswith(NUMPY_ONLY_PREFIXES):
-        return _dense(ns, name, args, kwargs)
-    return ns[name](*args, **kwargs)
+def _router(derivation, numpy_ns: dict):
+    """What a live NumPy module calls (from its slow path) with arguments it does not take as
+    they are: arrays of another library go to the array-API module; anything else back."""
+
+    def route(name: str, lead: tuple, kwargs: dict):
+        values = (*lead, *kwargs.values())
+        libraries = {_library(v) for v in values} - {None, "numpy"}
+        if not libraries:
+            return numpy_ns["_GW_NUMPY"]  # np.matrix, NumPy scalars, ...
+        large = chunked_dims(derivation, kwargs) if "dask" in libraries else ()
+        ns = _array_api_namespace(derivation, large)
+        if name.startswith(NUMPY_ONLY_PREFIXES):
+            return _dense(ns, name, lead, kwargs)
+        return ns[name](*lead, **kwargs)
+
+    return route
 
 
 def _dense(ns: dict, name: str, args: tuple, kwargs: dict):
@@ -113,57 +115,23 @@ def _dense(ns: dict, name: str, args: tuple, kwargs: dict):
     return xp.stack(columns, axis=1)
 
 
-def _dispatch_template(np_fn, route, plain, npos, refuse):
-    def dispatch(*args, **kwargs):
-        if len(args) > npos:
-            refuse(len(args))
-        if plain.issuperset(map(type, kwargs.values())) and plain.issuperset(map(type, args)):
-            return np_fn(*args, **kwargs)
-        return route(args, kwargs)
-
-    return dispatch
-
-
-def _refuse_positional(np_fn):
-    """The error for arrays passed by position, in words that say what to do."""
-    params = inspect.signature(np_fn).parameters.values()
-    positional = [p.name for p in params if p.kind is not p.KEYWORD_ONLY]
-    keywords = [p.name for p in params if p.kind is p.KEYWORD_ONLY]
-    shown = ", ".join([*positional, *(f"{k}=..." for k in keywords)])
-    name = np_fn.__name__
-
-    def refuse(count):
-        raise TypeError(
-            f"{name}() got {count} positional arguments: pass arrays by keyword: {name}({shown})"
-        )
-
-    return len(positional), refuse
-
-
 def dispatching(derivation, name: str, ns: dict):
     """The generated function `name`, taking arrays of any supported library.
 
-    NumPy arrays, numbers and lists reach the NumPy function directly (two set look-ups of
-    overhead); PyTorch, JAX, CuPy and Dask arrays reach the array-API module, written once per
-    set of large dims.
+    It is the NumPy module's own function: NumPy arrays, numbers and lists take its fast path
+    (one tuple comparison); on a miss its slow path asks the router set here, which sends
+    PyTorch, JAX, CuPy and Dask arrays to the array-API module, written once per set of large
+    dims. Arrays passed by position are refused there, in words.
     """
-    cache = derivation.__dict__.setdefault("_dispatchers", {})
-    fn = cache.get(name)
-    if fn is not None:
-        return fn
-    np_fn = ns[name]
-
-    def route(args, kwargs):
-        return _route(derivation, name, np_fn, args, kwargs)
-
-    npos, refuse = _refuse_positional(np_fn)
-    inner = _dispatch_template(np_fn, route, _PLAIN, npos, refuse)
-    # a function whose globals are the NumPy module's, like the function it stands for: the
-    # finite-difference check reaches the module's state through __globals__
-    fn = types.FunctionType(inner.__code__, ns, name, None, inner.__closure__)
-    fn.__doc__ = np_fn.__doc__
-    fn.__wrapped__ = np_fn  # inspect.signature shows the generated signature
-    fn.__qualname__ = np_fn.__qualname__
-    fn.__module__ = np_fn.__module__
-    cache[name] = fn
+    fn = ns[name]
+    if ns["_GW_ROUTER"][0] is None:
+        ns["_GW_ROUTER"][0] = _router(derivation, ns)
+    if "__signature__" not in fn.__dict__:
+        # help() and the notebook show the parameters as written, not the marker defaults
+        params = [
+            p.replace(default=inspect.Parameter.empty) if p.default is ns["_GW_UNSET"] else p
+            for p in inspect.signature(fn).parameters.values()
+            if p.kind is not p.VAR_POSITIONAL
+        ]
+        fn.__signature__ = inspect.Signature(params)
     return fn

@@ -90,6 +90,21 @@ class Derivation(DerivationFunctions):
         self._vars = {v: block.declarations[v] for v in wrt}
         self._functions: dict | None = None
         self._source: str | None = None
+        self._warn_nonfinite = False
+
+    @property
+    def warn_nonfinite(self) -> bool:
+        """Whether generated functions warn on an array result with inf or nan entries (a
+        number result always warns); settable, also after functions were made."""
+        return self._warn_nonfinite
+
+    @warn_nonfinite.setter
+    def warn_nonfinite(self, on: bool) -> None:
+        self._warn_nonfinite = bool(on)
+        spaces = [self._functions, *self.__dict__.get("_array_api_namespaces", {}).values()]
+        for ns in spaces:
+            if ns is not None and "_GW_WARN_NONFINITE" in ns:
+                ns["_GW_WARN_NONFINITE"] = self._warn_nonfinite
 
     # --- description -----------------------------------------------------------------------------
 
@@ -474,6 +489,8 @@ class Derivation(DerivationFunctions):
             linecache.cache[filename] = (len(source), None, source.splitlines(True), filename)
             # our own printer wrote this text from the tree; no user text is executed
             exec(compile(source, filename, "exec"), ns)  # noqa: S102
+            if "_GW_WARN_NONFINITE" in ns:
+                ns["_GW_WARN_NONFINITE"] = self._warn_nonfinite
             self._functions = ns
         return self._functions
 

@@ -162,7 +162,10 @@ def _variable_specs(d, v: str, gen, cost) -> list:
 
 
 def _ret(name: str, shape) -> str:
-    return f"np.asarray({name})[()]" if E.is_scalar_shape(shape) else name
+    if not E.is_scalar_shape(shape):
+        return name
+    # a NumPy scalar as it is (the common case, and no call); a 0-d array or number made one
+    return f"({name} if isinstance({name}, np.generic) else np.asarray({name})[()])"
 
 
 def _size_code(shape) -> str:

@@ -6,6 +6,7 @@ import warnings
 
 import numpy as np
 import pytest
+import torch
 
 from gradwright import derive
 
@@ -156,12 +157,21 @@ def test_non_finite_results_warn(factor):
     d, a = factor
     with pytest.warns(RuntimeWarning, match="the value is not finite"):
         d.function()(**{**a, "mu": np.inf})
+    # array results are checked when asked for (the test is one BLAS call per result)
+    g = d.gradient_function("U")
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        assert not np.isfinite(g(**{**a, "mu": np.inf})).any()
+    d.warn_nonfinite = True  # also for functions made before
     with pytest.warns(RuntimeWarning, match=r"the gradient of U is not finite .* in 12 of 12"):
-        d.gradient_function("U")(**{**a, "mu": np.inf})
-    x = derive("x: (n,)\nf = sum(log(x))", wrt="x")
+        g(**{**a, "mu": np.inf})
+    x = derive("x: (n,)\nf = sum(log(x))", wrt="x", warn_nonfinite=True)
     with pytest.warns(RuntimeWarning, match="the gradient of x is not finite"):
         with np.errstate(divide="ignore"):
             x.gradient_function()(x=np.zeros(3))
+    with pytest.warns(RuntimeWarning, match="the gradient of x is not finite"):
+        with np.errstate(divide="ignore"):
+            x.gradient_function()(x=torch.zeros(3, dtype=torch.float64))
 
 
 def test_finite_results_do_not_warn(factor):

@@ -102,3 +102,33 @@ def test_demo_runs_in_a_fresh_kernel(path, tmp_path, kernel_env):
         and "gradwright-check-status" in m["state"].get("_dom_classes", [])
     ]
     assert statuses and any("PASS" in s for s in statuses)
+
+
+def test_the_readme_command_opens_working_copies(tmp_path, monkeypatch):
+    """JupyterLab saves what it runs: the README's demo command gives it copies, so the tracked
+    notebooks stay as build_demos.py wrote them."""
+    import importlib.util
+    import subprocess
+
+    spec = importlib.util.spec_from_file_location(
+        "open_demos", ROOT / "notebooks_demo" / "open_demos.py"
+    )
+    opener = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(opener)
+    monkeypatch.setattr(opener, "RUN", tmp_path / "run")
+    tracked = {p: p.read_bytes() for p in DEMOS}
+    assert opener.main(["--no-lab"]) == 0
+    copies = sorted((tmp_path / "run").glob("*.ipynb"))
+    assert [c.name for c in copies] == [p.name for p in DEMOS]
+    copies[0].write_text("{}")  # a run saved by JupyterLab
+    opener.main(["--no-lab"])
+    assert copies[0].read_text() == "{}"  # kept
+    opener.main(["--no-lab", "--fresh"])
+    assert copies[0].read_bytes() == DEMOS[0].read_bytes()
+    assert {p: p.read_bytes() for p in DEMOS} == tracked
+    readme = (ROOT / "README.md").read_text(encoding="utf-8")
+    assert "python notebooks_demo/open_demos.py" in readme
+    ignored = subprocess.run(
+        ["git", "check-ignore", "-q", "notebooks_demo/run/x.ipynb"], cwd=ROOT, check=False
+    )
+    assert ignored.returncode == 0, "notebooks_demo/run/ must be ignored by git"

@@ -89,6 +89,12 @@ class _ToArrayApi(ast.NodeTransformer):
         def wrap(e):
             if isinstance(e, ast.Tuple):
                 return ast.Tuple([wrap(x) for x in e.elts], ast.Load())
+            if (
+                isinstance(e, ast.IfExp)
+                and isinstance(e.test, ast.Call)
+                and getattr(e.test.func, "id", None) == "isinstance"
+            ):  # the NumPy module's scalar fast path: the library's own conversion serves
+                return wrap(e.orelse)
             if isinstance(e, ast.Name):  # a result that may be a Python number (a constant)
                 xp = ast.Attribute(ast.Name("xp", ast.Load()), "result", ast.Load())
                 return ast.Call(xp, [e], [])
@@ -116,7 +122,22 @@ class _ToArrayApi(ast.NodeTransformer):
         # `if not cmath.isfinite(v): _gw_finite(v, ...)` reads a number now: for a Dask graph or
         # a JAX trace that is wrong, so the namespace decides (gw_finite skips what is lazy)
         if any(isinstance(n, ast.Name) and n.id == "cmath" for n in ast.walk(node.test)):
-            return [self.visit(stmt) for stmt in node.body]
+            body = [self.visit(stmt) for stmt in node.body]
+            test = node.test
+            if isinstance(test, ast.BoolOp) and isinstance(test.values[0], ast.Name):
+                node.test, node.body = test.values[0], body  # warn on arrays only when asked
+                return node
+            return body
+        return self.generic_visit(node)
+
+    def visit_FunctionDef(self, node):
+        # the NumPy module's marker defaults and `*_gw_pos` let its slow path name a missing or
+        # positional argument; here Python's own keyword-only parameters do that
+        node.args.vararg = None
+        node.args.kw_defaults = [
+            None if isinstance(d, ast.Name) and d.id == "_GW_UNSET" else d
+            for d in node.args.kw_defaults
+        ]
         return self.generic_visit(node)
 
     def visit_Assign(self, node):
@@ -204,7 +225,7 @@ def translate(numpy_source: str, backend: str = "array_api") -> str:
     if backend != "array_api":
         runtime = runtime.replace("_GW_BACKEND = None", f"_GW_BACKEND = {backend!r}", 1)
     table = "_gw_functions = {" + ", ".join(f'"{f.name}": {f.name}' for f in body) + "}"
-    parts = [header, runtime.rstrip()]
+    parts = [header, runtime.rstrip(), "_GW_WARN_NONFINITE = False  # see derive(warn_nonfinite=)"]
     parts += [ast.unparse(f) for f in body]
     parts.append(table)
     return "\n\n\n".join(parts) + "\n"

@@ -13,7 +13,15 @@ message or conversion there. Example of the generated text:
             raise LookupError
         _dims = _hit[1]
     except (AttributeError, LookupError):
+        if _gw_pos or _gw_foreign(X, w):
+            _gw_out = _gw_route('value', _gw_pos, (), dict(X=X, w=w))
+            if _gw_out is not _GW_NUMPY:
+                return _gw_out
         (X, w), _dims = _gw_check((...), _gw_last_value)
+
+The function itself is what the user calls: no wrapper. Its keyword arguments default to a
+marker, so that a missing or positional argument, like an array of another library, falls to
+the slow path and is named (or routed) there, at no cost to the fast path.
 """
 
 from __future__ import annotations
@@ -35,9 +43,54 @@ class _GwDims(dict):
 _GW_COMPLEX_STEP = []
 
 
+class _GwRequired:
+    """The default of a required argument: its absence is named in the slow path."""
+
+    def __repr__(self):
+        return "<required>"
+
+
+_GW_UNSET = _GwRequired()
+_GW_NUMPY = _GwRequired()  # the router's answer: these arguments are for the NumPy code
+# types the NumPy code takes as they are (anything else may be another library's array)
+_GW_PLAIN = frozenset(
+    {np.ndarray, float, int, bool, complex, list, tuple, np.float64, np.float32, np.int64,
+     type(None), _GwRequired}
+)
+# set by gradwright for a live module: routes other libraries' arrays to array-API code
+_GW_ROUTER = [None]
+
+
+def _gw_foreign(*values):
+    return _GW_ROUTER[0] is not None and not _GW_PLAIN.issuperset(map(type, values))
+
+
+def _gw_route(name, pos, lead, kw):
+    """Arguments the NumPy code does not take as they are: arrays passed by position (refused
+    with the call to write), or arrays of another library (computed by its array-API code)."""
+    if pos:
+        shown = ", ".join(["direction"] * len(lead) + [f"{k}=..." for k in kw])
+        raise TypeError(
+            f"{name}() got {len(pos)} positional argument{'s' * (len(pos) > 1)}: "
+            f"pass arrays by keyword: {name}({shown})"
+        )
+    router = _GW_ROUTER[0]
+    if router is None:
+        return _GW_NUMPY
+    return router(name, lead, {k: v for k, v in kw.items() if v is not _GW_UNSET})
+
+
 def _gw_check(specs, last=None):
     """Validate the arguments; returns the arrays and the dims they bind. When `last` is
     given and no argument needed a conversion, remember the call's key there (fast path)."""
+    missing = [repr(spec[0]) for spec in specs if spec[1] is _GW_UNSET]
+    if missing:
+        s = "s" * (len(missing) > 1)
+        raise TypeError(
+            f"missing {len(missing)} required keyword-only argument{s}: "
+            + (", ".join(missing[:-1]) + " and " if len(missing) > 1 else "")
+            + missing[-1]
+        )
     dims, owner, out, products = _GwDims(), {}, [], []
     key, plain, kinds = [], last is not None, []
     for name, value, spec, *field in specs:  # field: "complex" for a complex-declared input
@@ -136,7 +189,9 @@ def _key_text(names_and_specs) -> str:
     return "(" + ", ".join(parts) + ("," if len(parts) == 1 and "," not in parts[0] else "") + ")"
 
 
-def check_code(fname: str, entries: list) -> tuple[list[str], list[str]]:
+def check_code(
+    fname: str, entries: list, keywords: tuple = (), lead: str | None = None
+) -> tuple[list[str], list[str]]:
     """(module-level lines, function-body lines) checking the arguments of `fname`.
 
     `entries` lists (label, variable, spec text[, "complex"]) in argument order; spec text as
@@ -148,6 +203,8 @@ def check_code(fname: str, entries: list) -> tuple[list[str], list[str]]:
     cache = f"_gw_last_{fname}"
     targets = ", ".join(e[1] for e in entries) + ("," if len(entries) == 1 else "")
     key = _key_text([(e[1], e[2]) for e in entries])
+    values = [lead] * bool(lead) + list(keywords)
+    kw = ", ".join(f"{k}={k}" for k in keywords)
     body = [
         "    try:",
         f"        _hit = {cache}[0]",
@@ -155,6 +212,11 @@ def check_code(fname: str, entries: list) -> tuple[list[str], list[str]]:
         "            raise LookupError",
         "        _dims = _hit[1]",
         "    except (AttributeError, LookupError):",
+        f"        if _gw_pos or _gw_foreign({', '.join(values)}):",
+        f"            _gw_out = _gw_route({fname!r}, _gw_pos, ({lead + ',' if lead else ''}), "
+        f"dict({kw}))",
+        "            if _gw_out is not _GW_NUMPY:",
+        "                return _gw_out",
         f"        ({targets}), _dims = _gw_check(",
         "            (",
         *[f"                ({e[0]!r}, {e[1]}, {e[2]}{_marker(e)})," for e in entries],
@@ -173,5 +235,10 @@ def finite_lines(name: str, shape, what: str) -> list[str]:
     """Warn when an output is not finite. A sum of squares is not finite exactly when some
     entry is not (or, harmlessly, when it overflows: then the helper counts and finds none),
     and costs one BLAS call instead of an isfinite pass and a count."""
-    test = name if all(d is None for d in shape) else f"np.vdot({name}, {name})"
-    return [f"    if not cmath.isfinite({test}):", f"        _gw_finite({name}, {what!r})"]
+    if all(d is None for d in shape):  # a number: the test costs next to nothing
+        return [f"    if not cmath.isfinite({name}):", f"        _gw_finite({name}, {what!r})"]
+    # an array: one BLAS call, which shows at small sizes, so only when asked for
+    return [
+        f"    if _GW_WARN_NONFINITE and not cmath.isfinite(np.vdot({name}, {name})):",
+        f"        _gw_finite({name}, {what!r})",
+    ]

@@ -514,9 +514,12 @@ class CodeGen:
         return name
 
     def signature(self, direction: str | None) -> str:
-        req = [self.arg_name(n) for n in self.required]
+        # required arguments default to a marker: a missing or positional one is named by the
+        # slow path of the argument check (see printing/checks.py), the fast path pays nothing
+        req = [f"{self.arg_name(n)}=_GW_UNSET" for n in self.required]
         opt = [f"{self.arg_name(n)}=None" for n in self.symbols if n not in self.required]
-        params = ([direction, "/"] if direction else []) + ["*"] + req + opt
+        star = "*_gw_pos" if req else "*"
+        params = ([direction, "/"] if direction else []) + [star] + req + opt
         if params == ["*"]:
             return ""
         return ", ".join(params)
@@ -541,7 +544,9 @@ class CodeGen:
             marker = ("complex",) if self.complex_directions else ()
             entries.append((_direction_label(direction), pname, self.spec_of(shape), *marker))
         self.helpers.add("_gw_check")
-        module_lines, body = check_code(fname, entries)
+        keywords = (*self.required, *(n for n in self.symbols if n not in self.required))
+        lead = direction[0] if direction is not None else None
+        module_lines, body = check_code(fname, entries, keywords, lead)
         self.module_lines = module_lines
         return body
 

@@ -28,6 +28,11 @@ def _gw_place(g, n, lo, hi, axis):
     return out
 """,
     "_gw_finite": """
+# a warning for non-finite array results (a number result is always checked): off by default,
+# since the test is one BLAS call per output; `derive(..., warn_nonfinite=True)` sets it
+_GW_WARN_NONFINITE = False
+
+
 def _gw_finite(value, what):
     bad = np.size(value) - np.count_nonzero(np.isfinite(value))
     if bad:
