@@ -13,7 +13,7 @@ from dataclasses import dataclass
 from . import expr as E
 from .calculus import adjoint, differential, expand_once, has_pending, kronecker_form
 from .derivation_functions import DerivationFunctions
-from .errors import FormulaError, NotSupportedError, ShapeError
+from .errors import FormulaError, NotSupportedError, ShapeError, frame_named
 from .function_specs import MAX_HESSIAN_GRADIENT, build_specs  # noqa: F401
 from .language import Block
 from .matrix_checks import adjust_samples
@@ -26,8 +26,9 @@ from .sampling import default_sizes, needs_positive, sample_inputs
 from .simplify import simplify
 
 MAX_STEPS = 40
-#: the widest line of a printed step, in ems, before it breaks at an operator
-LINE_BUDGET = 36.0
+#: the widest line of a printed step, in ems, before it breaks at an operator (with the rule
+#: column beside it, a line fits an A4 page with 1.5 cm margins: to_latex is checked by pdflatex)
+LINE_BUDGET = 30.0
 
 
 def _memoized(method):
@@ -321,13 +322,13 @@ class Derivation(DerivationFunctions):
 
     def latex(self) -> str:
         """The derivation as one aligned environment, rule names beside each line."""
-        from .printing.layout import broken_lines, rule_math
+        from .printing.layout import broken_lines, rule_stack
 
         lines = []
         prev_lhs = None
         for step in self.steps[1:]:
             lhs = step.lhs_latex if step.lhs_latex != prev_lhs else ""
-            rule = f" && {rule_math(step.rule)}" if step.rule else ""
+            rule = f" && {rule_stack(step.rule)}" if step.rule else ""  # wrapped to fit a page
             first, *rest = broken_lines(step.expr, LINE_BUDGET)
             lines.append(f"{lhs} &= {first}{rule}")
             lines.extend(rf"&\qquad {more}" for more in rest)
@@ -517,7 +518,7 @@ def _api_boundary(method):
             what = method.__name__.replace("_", " ")
             raise NotSupportedError(f"not supported yet: {what} for this block ({err})") from None
 
-    return wrapper
+    return frame_named(wrapper, f"Derivation.{method.__name__}")
 
 
 for _name in (

@@ -31,11 +31,16 @@ from .costmodel import (  # noqa: F401 - public names kept importable from here
     guess_sizes,
     lower,
 )
+from .inplace import INPLACE_HELPERS, rewrite_function
 from .runtime import FUNC_CODE, HELPERS  # noqa: F401
+from .shared_eigh import HELPERS as SHARED_EIGH_HELPERS
+from .shared_eigh import shared_matrices
 from .structure import known_spd
 from .text import TextPrinter
 
 HELPERS.update(AXIS_HELPERS)
+HELPERS.update(INPLACE_HELPERS)
+HELPERS.update(SHARED_EIGH_HELPERS)
 HELPERS.update(spec.helper for spec in EXTRA_ENTRYWISE.values() if spec.helper is not None)
 
 # ---------------------------------------------------------------------------------------------
@@ -151,7 +156,32 @@ class NumpyPrinter(NumpyAxisMixin, TextPrinter):
             if right == "row" and left is None:
                 col = f"{self.wrap(self._print(e.args[0]))}[:, None]"
                 return f"np.broadcast_to({col}, {self.shape_tuple(e.shape)})"
+        # X @ ones((c, k)) repeats the row sums of X k times (a softmax backward has it): a sum
+        # and a read-only broadcast view, never the ones matrix nor its product
+        if len(e.args) >= 2 and E.is_matrix_shape(e.shape):
+            for end, axis in ((-1, 1), (0, 0)):
+                f = e.args[end]
+                if type(f) is E.Ones and E.is_matrix_shape(f.shape):
+                    rest = E.matmul(*(e.args[:-1] if end == -1 else e.args[1:]))
+                    if E.is_matrix_shape(rest.shape):
+                        summed = self._sum_kept(rest, axis)
+                        return f"np.broadcast_to({summed}, {self.shape_tuple(e.shape)})"
         return super()._print_MatMul(e)
+
+    def _sum_kept(self, x: E.Expr, axis: int) -> str:
+        """np.sum(x, axis, keepdims=True); of a product X * Y by einsum, without forming it."""
+        if type(x) is E.Mul and len(x.args) == 2 and self.gen.temps.get(x) is None:
+            a, b = x.args
+            if E.is_matrix_shape(a.shape) and E.is_matrix_shape(b.shape):
+                out, index = ("i", "[:, None]") if axis == 1 else ("j", "[None, :]")
+                return f'np.einsum("ij,ij->{out}", {self._print(a)}, {self._print(b)}){index}'
+        return f"np.sum({self._print(x)}, axis={axis}, keepdims=True)"
+
+    def _print_Add(self, e):
+        factored = _factor_common(e)
+        if factored is not None:  # A*X - A*Y as A*(X - Y): one product fewer
+            return self._print(factored)
+        return super()._print_Add(e)
 
     def _reuse_products(self, seg: list) -> list:
         """A run of factors whose product is already a temporary is read from it."""
@@ -496,6 +526,8 @@ class CodeGen:
         self.module_lines: list[str] = []
         #: complex blocks: directions and cotangents may be complex arrays
         self.complex_directions = False
+        #: elementwise arithmetic written into the arrays the code owns (printing/inplace.py)
+        self.in_place = True
 
     def arg_name(self, name: str) -> str:
         if keyword.iskeyword(name) or name.startswith("_"):  # pragma: no cover - parser refuses
@@ -552,6 +584,8 @@ class CodeGen:
 
     def function(self, spec: FunctionSpec) -> str:
         self.temps, self.lines, self.cholesky = {}, [], {}
+        # one eigh per matrix whose spectrum the function needs twice (printing/shared_eigh.py)
+        self.eighs, self.eigh_shared = {}, shared_matrices(o.expr for o in spec.outputs)
         printer = NumpyPrinter(self)
         direction = spec.direction
         if direction is not None:
@@ -615,10 +649,14 @@ class CodeGen:
             self.lines.append(f"    {o.name} = {text}")
             self.helpers.add("_gw_finite")
             self.lines += finite_lines(o.name, o.shape, o.what)
-        body = head + self.lines
-        if spec.loop:
-            body.append(spec.loop)
-        body.append(f"    return {spec.returns}")
+        tail = [spec.loop] if spec.loop else []
+        tail.append(f"    return {spec.returns}")
+        if self.in_place:  # arithmetic written into the arrays this function owns
+            scalars = {n for n, s in self.symbols.items() if E.is_scalar_shape(s.shape)}
+            scalars.update(v for k, v in self.temps.items() if E.is_scalar_shape(k.shape))
+            self.lines, used = rewrite_function(self.lines, "\n".join(tail), scalars)
+            self.helpers.update(used)
+        body = head + self.lines + tail
         self.directions = {}
         return "\n".join([*self.module_lines, "", ""] * bool(self.module_lines) + body)
 
@@ -684,6 +722,28 @@ def _shared_nodes(exprs) -> set:
 
 #: transposed duplicates are looked for only among this many candidate nodes (bounded work)
 MAX_FLIP_CHECKS = 400
+
+
+def _factor_common(e: E.Add) -> E.Expr | None:
+    """c A X - c A Y as c A (X - Y): the factors (and the size of the coefficient) every term
+    of a sum shares, taken out; None when the terms share none."""
+    split = [E.split_coef(t) for t in e.args]
+    if any(rest is None for _c, rest in split):
+        return None
+    factors = [list(rest.args) if type(rest) is E.Mul else [rest] for _c, rest in split]
+    # mul() merges repeated factors into powers, so the factors of a term are distinct
+    common = [f for f in factors[0] if all(f in other for other in factors[1:])]
+    if not common or any(E.is_matrix_shape(f.shape) and f.shape != e.shape for f in common):
+        return None
+    size = abs(split[0][0])
+    k = size if all(abs(c) == size for c, _r in split) else 1
+    rests = []
+    for (c, _r), fs in zip(split, factors):
+        left = list(fs)
+        for f in common:
+            left.remove(f)
+        rests.append(E.mul(E.Const(c / k), *left))
+    return E.mul(E.Const(k), *common, E.add(*rests))
 
 
 def _ones_side(f: E.Expr) -> str | None:

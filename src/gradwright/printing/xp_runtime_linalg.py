@@ -173,3 +173,26 @@ class _GwLinalg:
 
     def gw_cho_solve(self, factor, b):
         return self.cho_solve(factor, b)
+
+    # the in-place arithmetic of the NumPy code (printing/inplace.py), computed as written:
+    # JAX arrays are immutable and other libraries' temporaries are theirs to manage
+    def gw_imul(self, x, y):
+        return x * y
+
+    def gw_iadd(self, x, y):
+        return x + y
+
+    def gw_isub(self, x, y):
+        return x - y
+
+    def gw_idiv(self, x, y):
+        return x / y
+
+    def gw_rsub(self, y, x):
+        return y - x
+
+    def gw_rdiv(self, y, x):
+        return y / x
+
+    def gw_apply(self, f, x):
+        return f(x)
