@@ -196,3 +196,35 @@ def test_stationary_expressions_by_the_reference_evaluator(longley):
     d = derive("X: (n, p)\nb: (p,)\ny: (n,)\nf = sum((X @ b - y)**2)", wrt="b")
     got = evaluate(d.stationary_point("b").expression, {"X": X, "y": y})
     assert np.allclose(got, LONGLEY_CERTIFIED, rtol=1e-6, atol=0)
+
+
+def test_printed_closed_forms_solve_rather_than_invert():
+    """A closed form printed as code reads as the solve it is: `solve(XᵀX + λI, Xᵀy)`, the
+    ridge estimator (Hoerl & Kennard 1970, Technometrics 12(1); from memory), not `inv(...)`; the
+    GLS estimator (XᵀV⁻¹X)⁻¹XᵀV⁻¹y (Aitken 1935 — from memory) likewise. The LaTeX keeps the
+    inverse notation of the literature. The printed text parses back to the same numbers."""
+    from gradwright import derive
+    from gradwright.calculus.stationary import solves_form
+
+    ridge = derive(
+        "X: (n, p)\ny: (n,)\nw: (p,)\nlam: () positive\nf = sum((X @ w - y)**2) + lam * sum(w**2)",
+        wrt="w",
+    ).stationary_point("w")
+    assert ridge.text() == "w = solve(X.T @ X + lam * eye(p), X.T @ y)"
+    assert str(ridge) == ridge.text() and "solve(" in repr(ridge)
+    assert r"\right)^{-1}" in ridge.latex()
+    gls = derive(
+        "X: (n, p)\ny: (n,)\nV: (n, n) spd\nb: (p,)\nf = (y - X @ b) @ solve(V, y - X @ b)",
+        wrt="b",
+    ).stationary_point("b")
+    assert gls.text() == "b = solve(X.T @ solve(V, X), X.T @ solve(V, y))"
+    assert "inv(" not in gls.text()
+    rng = np.random.default_rng(3)
+    X, y = rng.standard_normal((9, 3)), rng.standard_normal(9)
+    A = rng.standard_normal((9, 9))
+    V = A @ A.T + 9 * np.eye(9)
+    shapes = {"X": ("n", "p"), "y": ("n",), "V": "(n, n) spd"}
+    reread = derive(gls.text().split(" = ", 1)[1] + " @ ones(p)", wrt="X", shapes=shapes)
+    want = np.linalg.solve(X.T @ np.linalg.solve(V, X), X.T @ np.linalg.solve(V, y)).sum()
+    np.testing.assert_allclose(reread.function()(X=X, y=y, V=V), want, rtol=1e-10)
+    assert solves_form(gls.expression) is not gls.expression

@@ -31,7 +31,18 @@ class StationaryPoint:
         return f"{symbol_latex(self.var)}^{{\\star}} = {latex(self.expression)}"
 
     def text(self) -> str:
-        return f"{self.var} = {text(self.expression)}"
+        """`w = solve(X.T @ X + lam * eye(p), X.T @ y)`: a product with an inverse reads as
+        the solve it is (what to write in code; the LaTeX shows the same as A⁻¹ B)."""
+        return f"{self.var} = {text(solves_form(self.expression))}"
+
+    def __str__(self) -> str:
+        return self.text()
+
+    def __repr__(self) -> str:
+        return f"<stationary point {self.text()} ({self.how})>"
+
+    def _repr_latex_(self) -> str:
+        return f"${self.latex()}$"
 
     def arguments(self) -> list[str]:
         used = self.expression.symbols
@@ -235,3 +246,29 @@ def _through_inverse(g: E.Expr, x: E.Symbol, derivation):
         f"the gradient is affine in inv({x.name}); solved for inv({x.name}) and inverted",
         derivation,
     )
+
+
+def solves_form(e: E.Expr) -> E.Expr:
+    """The same expression with every product by an inverse written as a solve:
+    inv(A) @ B @ c is solve(A, B @ c), x.T @ inv(V) @ x is x.T @ solve(V, x). A lone inverse
+    (no factor to its right) stays what it is."""
+    memo: dict = {}
+
+    def go(x: E.Expr) -> E.Expr:
+        done = memo.get(x)
+        if done is not None:
+            return done
+        children = [go(c) for c in x.children]
+        y = x.rebuild(children) if any(a is not b for a, b in zip(children, x.children)) else x
+        if type(y) is E.MatMul:
+            tail: list = []
+            for f in reversed(y.args):
+                if type(f) is E.Inverse and tail:
+                    tail = [E.Solve(f.args[0], tail[0] if len(tail) == 1 else E.MatMul(*tail))]
+                else:
+                    tail.insert(0, f)
+            y = tail[0] if len(tail) == 1 else E.MatMul(*tail)
+        memo[x] = y
+        return y
+
+    return go(e)
