@@ -652,9 +652,12 @@ class CodeGen:
         tail = [spec.loop] if spec.loop else []
         tail.append(f"    return {spec.returns}")
         if self.in_place:  # arithmetic written into the arrays this function owns
-            scalars = {n for n, s in self.symbols.items() if E.is_scalar_shape(s.shape)}
-            scalars.update(v for k, v in self.temps.items() if E.is_scalar_shape(k.shape))
-            self.lines, used = rewrite_function(self.lines, "\n".join(tail), scalars)
+            known = [(n, s.shape) for n, s in self.symbols.items()]
+            known += [(v, k.shape) for k, v in self.temps.items() if "." not in v]
+            known += [(o.name, o.shape) for o in spec.outputs]
+            scalars = {n for n, shape in known if E.is_scalar_shape(shape)}
+            ndims = {n: 2 - [d is None for d in shape].count(True) for n, shape in known}
+            self.lines, used = rewrite_function(self.lines, "\n".join(tail), scalars, ndims)
             self.helpers.update(used)
         body = head + self.lines + tail
         self.directions = {}
