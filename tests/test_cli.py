@@ -60,3 +60,22 @@ def test_bad_input_is_one_clear_message():
     assert "Traceback" not in out.stderr
     assert "line 2: trace needs a square matrix, got a (n, k) matrix" in out.stderr
     assert "^^^^^^^^" in out.stderr
+
+
+def test_an_array_target_says_its_derivative_is_a_jacobian():
+    # the magic says so; the command line printed the Kronecker form without a word
+    for show in ("steps", "result"):
+        out = run("derive", str(BLOCKS / "robot_arm.gw"), "--wrt", "W1", "--show", show)
+        assert out.returncode == 0, out.stderr
+        assert "the target grip is a vector of shape (o,), not a scalar" in out.stdout
+        assert "Jacobian" in out.stdout and "never builds it" in out.stdout
+    out = run("derive", str(BLOCKS / "store_demand.gw"), "--wrt", "U")
+    assert "Jacobian" not in out.stdout
+
+
+def test_the_derivation_writes_each_left_hand_side_once():
+    out = run("derive", str(BLOCKS / "store_demand.gw"), "--wrt", "U", "V")
+    lines = out.stdout.split("\n\n")[0].splitlines()[1:]
+    assert lines[0].startswith("dloss = d(")
+    assert all(line.startswith("      = ") for line in lines[1:6]), lines
+    assert lines[6].startswith("∂loss/∂U = ") and lines[7].startswith("∂loss/∂V = ")

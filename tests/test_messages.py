@@ -51,3 +51,17 @@ def test_api_errors_carry_no_internal_frames():
         d.gradient("q")
     frames = traceback.extract_tb(err.value.__traceback__)
     assert len([f for f in frames if "gradwright" in f.filename]) <= 1
+
+
+def test_the_one_frame_left_is_named_as_the_user_called_it():
+    # in a notebook the entry frame read "at_the_boundary.<locals>.entry" and
+    # "_api_boundary.<locals>.wrapper"; it names what the user called
+    with pytest.raises(FormulaError) as err:
+        derive(BLOCK.replace("sum(", "sum(Q + "), wrt="w")
+    names = [f.name for f in traceback.extract_tb(err.value.__traceback__)]
+    assert names[-1] == "derive", names
+    with pytest.raises(FormulaError) as err:
+        derive(BLOCK, wrt="w").gradient("q")
+    names = [f.name for f in traceback.extract_tb(err.value.__traceback__)]
+    assert names[-1] == "Derivation.gradient", names
+    assert "<locals>" not in "".join(traceback.format_exception(err.value))

@@ -71,10 +71,10 @@ def main(argv: list[str] | None = None) -> int:
         d = derive(text, wrt=args.wrt, sizes=sizes or None)
         parts = []
         if args.show == "steps":
-            parts.append("Derivation\n" + d.text_steps())
+            parts.append("Derivation\n" + _aligned(d.text_steps()))
             parts.append("Shapes\n" + _table(d.shape_table()))
         if args.show in ("steps", "result"):
-            parts.append("Result\n" + _result(d))
+            parts.append("Result\n" + _result(d) + _jacobian_note(d))
         if args.latex:
             parts.append(d.to_latex() if parts else d.to_latex().rstrip("\n"))
         if args.code:
@@ -89,6 +89,33 @@ def main(argv: list[str] | None = None) -> int:
     except BrokenPipeError:  # the reader (e.g. `head`) stopped early
         sys.stderr.close()
     return 0
+
+
+def _aligned(steps: str) -> str:
+    """The left-hand side written once, the following lines starting under its `=`, as on
+    paper (and in the notebook): `dloss = ...` then `      = ...`."""
+    out, previous = [], None
+    for line in steps.splitlines():
+        lhs, sep, rhs = line.partition(" = ")
+        if sep and lhs == previous:
+            line = " " * len(lhs) + " = " + rhs
+        previous = lhs if sep else None
+        out.append(line)
+    return "\n".join(out)
+
+
+def _jacobian_note(d) -> str:
+    """An array target's derivative is a Jacobian, not a gradient: said, as the magic says it."""
+    if d.is_scalar:
+        return ""
+    shape = tuple(d.target_shape)
+    kind = "a vector" if len(shape) == 1 else "a matrix"
+    written = "(" + ", ".join(str(n) for n in shape) + ("," if len(shape) == 1 else "") + ")"
+    return (
+        f"\n\nNote: the target {d.target} is {kind} of shape {written}, not a scalar, so its "
+        "derivative is a Jacobian, shown in Kronecker form for reading only; the generated code "
+        "(--code) never builds it: its jvp and vjp functions apply it and its transpose."
+    )
 
 
 def _result(d) -> str:

@@ -86,4 +86,15 @@ def at_the_boundary(fn):
         except FormulaError as err:
             raise err.with_traceback(None) from None
 
-    return entry
+    return frame_named(entry, fn.__name__)
+
+
+def frame_named(wrapper, name: str):
+    """The wrapper's frame in a traceback reads `in derive(...)`, the name the user called,
+    not `at_the_boundary.<locals>.entry`."""
+    code = wrapper.__code__
+    try:
+        wrapper.__code__ = code.replace(co_name=name, co_qualname=name)
+    except TypeError:  # Python 3.10: no co_qualname
+        wrapper.__code__ = code.replace(co_name=name)
+    return wrapper

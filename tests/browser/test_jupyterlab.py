@@ -113,7 +113,49 @@ def _notebook_for_test(workdir: Path, default: Path = DEMO) -> Path:
     return target
 
 
-@pytest.mark.parametrize("demo", [DEMO, WIDE_DEMO], ids=["store-week", "robot-arm"])
+#: the ferry demo shows a mixed second derivative (once 1,785 px wide)
+MIXED_DEMO = ROOT / "notebooks_demo" / "ferry_ticket_choice.ipynb"
+#: blocks of our own whose layout went wrong in a browser once: a Kalman update whose scaled
+#: trace was one 1,168 px line, and rule labels wrapped inside an equation or a word
+LAYOUT_BLOCKS = {
+    "kalman": (
+        "%%derive P\nF: (m, m)\nP: (m, m) spd\nQ: (m, m) spd\nH: (q, m)\nR: (q, q) spd\n"
+        "Pp = F @ P @ F.T + Q\nSg = H @ Pp @ H.T + R\nK = Pp @ H.T @ inv(Sg)\n"
+        "Pn = Pp - K @ H @ Pp\nJ = trace(Pn)"
+    ),
+    "factorization": (
+        "%%derive W H --no-check\nV: (m, n) positive\nW: (m, r)\nH: (r, n)\nR = V - W @ H\n"
+        "loss = 0.5 * norm(R)**2 + 0.1 * sum(abs(W))"
+    ),
+    # the complex gradient's rule wrapped "left-" / "hand side" at its hyphen
+    "beamformer": (
+        "%%derive w --no-check\nR: (m, m) hpd\na: (m,) complex\nw: (m,) complex\n"
+        "power = real(w.conj() @ R @ w) + 10 * abs(w.conj() @ a - 1)**2"
+    ),
+}
+
+
+def _blocks_notebook(target: Path) -> Path:
+    import nbformat
+    from nbformat.v4 import new_code_cell, new_notebook
+
+    cells = [new_code_cell("%load_ext gradwright")]
+    cells += [new_code_cell(block) for block in LAYOUT_BLOCKS.values()]
+    nb = new_notebook(cells=cells)
+    nb.metadata["kernelspec"] = {
+        "name": "python3",
+        "display_name": "Python 3",
+        "language": "python",
+    }
+    nbformat.write(nb, target)
+    return target
+
+
+@pytest.mark.parametrize(
+    "demo",
+    [DEMO, WIDE_DEMO, MIXED_DEMO, "blocks"],
+    ids=["store-week", "robot-arm", "ferry", "layout-blocks"],
+)
 def test_demo_notebook_in_jupyterlab(tmp_path, demo):
     _ensure_chromium()
     from playwright.sync_api import sync_playwright
@@ -121,7 +163,10 @@ def test_demo_notebook_in_jupyterlab(tmp_path, demo):
     ARTIFACTS.mkdir(exist_ok=True)
     workdir = tmp_path / "root"
     workdir.mkdir()
-    notebook = _notebook_for_test(workdir, demo)
+    if demo == "blocks":
+        notebook = _blocks_notebook(workdir / "layout_blocks.ipynb")
+    else:
+        notebook = _notebook_for_test(workdir, demo)
     settings_dir = tmp_path / "lab-settings"
     _write_settings(settings_dir)
 

@@ -102,3 +102,41 @@ def test_the_compile_check_catches_a_formula_inside_text(tmp_path):
     _pdflatex()
     ok, _ = _compile(r"\[ x \quad \text{tr(A) = tr(A^T)} \]", tmp_path, "bad")
     assert not ok
+
+
+#: models of our own whose to_latex() ran off an A4 page (up to 333 pt too wide: rules written
+#: on one line beside 36 em of math) or did not compile once the math broke inside a \frac
+PAGE_BLOCKS = {
+    "kalman-update": (
+        "F: (m, m)\nP: (m, m) spd\nQ: (m, m) spd\nH: (q, m)\nR: (q, q) spd\n"
+        "Pp = F @ P @ F.T + Q\nSg = H @ Pp @ H.T + R\nK = Pp @ H.T @ inv(Sg)\n"
+        "Pn = Pp - K @ H @ Pp\nJ = trace(Pn)",
+        ["P"],
+    ),
+    "two-layer-mean-square": (
+        "X: (n, d)\nY: (n, o)\nW1: (d, h)\nb1: (h,)\nW2: (h, o)\nH = tanh(X @ W1 + b1)\n"
+        "loss = mean((H @ W2 - Y)**2)",
+        ["W1", "b1", "W2"],
+    ),
+    "softmax-classifier": (
+        "X: (n, p)\nY: (n, k)\nW: (p, k)\nc: (k,)\nZ = X @ W + c\n"
+        "loss = -sum(Y * log_softmax(Z, axis=1)) / n + 0.01 * sum(W**2)",
+        ["W", "c"],
+    ),
+}
+#: pdflatex's tolerance for a line's overhang into the margin, in points (common practice: a
+#: few points are invisible; the page's text width here is 512 pt)
+OVERHANG_PT = 20.0
+
+
+@pytest.mark.parametrize("name", list(PAGE_BLOCKS))
+def test_to_latex_fits_the_page(tmp_path, name):
+    _pdflatex()
+    block, wrt = PAGE_BLOCKS[name]
+    d = derive(block, wrt=wrt)
+    body = d.to_latex() + "\n\\[\n" + d.second_derivative(wrt[0], wrt[-1]).latex() + "\n\\]\n"
+    ok, log = _compile(body, tmp_path, name)
+    assert ok, log
+    text = (tmp_path / f"{name}.log").read_text(errors="replace")
+    over = [float(x) for x in re.findall(r"Overfull \\hbox \(([0-9.]+)pt too wide\)", text)]
+    assert max(over, default=0.0) <= OVERHANG_PT, over

@@ -98,6 +98,10 @@ def test_logdet_of_a_kronecker_product_reads_off_k_inverse():
     assert latex(d.gradient("A")) == r"k\,A^{-1}"
     d = derive("A: (n, n) spd\nB: (k, k) spd\nf = logdet(kron(A, B))", wrt="B")
     assert latex(d.gradient("B")) == r"n\,B^{-1}"
+    # the text form says the same, in the language (a dim in a formula is its size)
+    assert str(d.gradient("B")) == "n * inv(B)"
+    d = derive("A: (n, n) spd\nB: (k, k) spd\nf = logdet(kron(A, kron(B, B)))", wrt="A")
+    assert str(d.gradient("A")) == "(k*k) * inv(A)"
 
 
 def test_one_hadamard_symbol_in_derivations_and_catalogue():
@@ -176,3 +180,12 @@ def test_reading_accepts_vectors_and_their_transposes():
     x = E.Symbol("x", (E.Dim.of("n"), None))
     a = E.Symbol("A", (E.Dim.of("n"), E.Dim.of("n")))
     assert reading(E.matmul(E.transpose(x), a, x)) == (1, 1)
+
+
+def test_a_norm_of_a_short_argument_has_text_height_bars():
+    # MathJax drew \left\lVert r \right\rVert as two tiny bars (identity panel, "applies
+    # backward: ||r||^2"); the catalogue writes \lVert ... \rVert, and so do we
+    d = derive("x: (n,)\nA: (n, n)\nf = norm(x)**2 + norm(A)", wrt="x")
+    text = d.latex()
+    assert r"\lVert x \rVert" in text and r"\left\lVert x" not in text
+    assert r"\lVert A \rVert_F" in text

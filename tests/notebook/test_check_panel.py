@@ -138,6 +138,16 @@ def test_namespace_arrays_used_only_when_every_one_fits():
     assert result.passed, result.summary()
     assert set(result.sources.values()) == {"sampled"}  # all or nothing
     assert any("S in your namespace was not used" in note for note in result.notes)
+    # in words, not Python reprs: seen as "it shape (5, 5) does not fit ('n', 'n') with {...}"
+    note = next(n for n in result.notes if n.startswith("S in your namespace"))
+    assert note == (
+        "S in your namespace was not used: it has shape (5, 5), which does not fit (n, n): "
+        "n = 3 from Z."
+    ), note
+    namespace["days"] = "thirty"
+    notes = _press(panel).notes
+    assert "days in your namespace was not used: it is not a numeric array." in notes, notes
+    namespace["days"] = 30.0
     assert any("no array of your namespace was used" in note for note in result.notes)
     namespace["S"] = np.cov(Z.T) + np.eye(3)  # now every array fits
     result = _press(panel)
@@ -163,6 +173,17 @@ def test_numbers_show_significant_digits_and_exponents():
     assert result.verdict == "ERROR" and "step" in result.error
 
 
+def test_the_verdict_line_writes_the_step_and_tolerance_as_the_boxes_do():
+    # seen: the box said 6.06e-06 and the verdict "step 6.1e-06"; a tolerance typed as 2.5e-07
+    # was reported as "3e-07", a number the user never wrote
+    panel = CheckPanel(derive(COVARIANCE, wrt="S"))
+    panel.tolerance.text.value = "2.5e-07"
+    result = _press(panel)
+    summary = result.summary()
+    assert "tolerance 2.5e-07" in summary, summary
+    assert f"step {panel.step.text.value}," in summary, summary
+
+
 def test_dims_out_of_range_are_refused_visibly_not_clamped():
     panel = CheckPanel(derive(COVARIANCE, wrt="S"))
     panel.size_inputs["n"].value = 100000
@@ -170,6 +191,11 @@ def test_dims_out_of_range_are_refused_visibly_not_clamped():
     assert "n = 100000 is more than" in panel.dims_message.value
     result = _press(panel)
     assert result.verdict == "ERROR" and "n = 100000" in result.error
+    # seen: "ERROR ValueError: dims: ..." above an empty table and a bare "inputs:"
+    assert "ValueError" not in result.error and "ValueError" not in panel.status.value
+    from gradwright.notebook.check_panel import _table_html
+
+    assert "<table" not in _table_html(result) and "inputs:" not in _table_html(result)
     panel.size_inputs["n"].value = 4
     assert panel.dims_message.value == ""
     assert _press(panel).passed

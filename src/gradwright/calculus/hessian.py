@@ -10,8 +10,8 @@ from dataclasses import dataclass
 
 from .. import expr as E
 from ..errors import NotSupportedError
-from ..printing import latex, symbol_latex, text
 from ..printing import numpy_code as C
+from ..printing import symbol_latex, text
 from ..simplify import simplify
 from .kronecker import kronecker_form
 from .rules import differential
@@ -116,20 +116,35 @@ class MixedDerivative:
     matrix: E.Expr | None
     target: str
 
+    #: the widest line in ems: long second derivatives break at operators, as derivations do
+    LINE_BUDGET = 22.0  # its left-hand sides are wider than a derivation's
+
     def latex(self) -> str:
+        from ..printing.layout import broken_lines, rule_stack
+
         f, u, v = symbol_latex(self.target), symbol_latex(self.first), symbol_latex(self.second)
-        lines = [
-            rf"\frac{{\partial {f}}}{{\partial {u}}} &= {latex(self.gradient)}",
-            rf"\mathrm{{d}}_{{{v}}}\!\left(\frac{{\partial {f}}}{{\partial {u}}}\right) "
-            rf"&= {latex(self.differential)} && \text{{differentiate the gradient in the "
-            rf"direction of {self.second}}}",
+        rows = [
+            (rf"\frac{{\partial {f}}}{{\partial {u}}}", self.gradient, ""),
+            (
+                rf"\mathrm{{d}}_{{{v}}}\!\left(\frac{{\partial {f}}}{{\partial {u}}}\right)",
+                self.differential,
+                f"differentiate the gradient in the direction of {self.second}",
+            ),
         ]
         if self.matrix is not None:
-            lines.append(
-                rf"\frac{{\partial^2 {f}}}{{\partial \operatorname{{vec}}({u})\, "
-                rf"\partial \operatorname{{vec}}({v})^{{\top}}}} &= {latex(self.matrix)}"
-                r" && \text{vectorize and read off}"
+            rows.append(
+                (
+                    rf"\frac{{\partial^2 {f}}}{{\partial \operatorname{{vec}}({u})\, "
+                    rf"\partial \operatorname{{vec}}({v})^{{\top}}}}",
+                    self.matrix,
+                    "vectorize and read off",
+                )
             )
+        lines = []
+        for lhs, expr, rule in rows:
+            first, *rest = broken_lines(expr, self.LINE_BUDGET)
+            lines.append(f"{lhs} &= {first}" + (f" && {rule_stack(rule)}" if rule else ""))
+            lines.extend(rf"&\qquad {more}" for more in rest)
         return "\\begin{aligned}\n" + " \\\\\n".join(lines) + "\n\\end{aligned}"
 
     def text(self) -> str:

@@ -26,7 +26,7 @@ NUMPY_CONSTRUCTS: tuple[tuple[str, str, str], ...] = (
      "weights softmax(Z, axis=1); value, gradient and HVP computed max-shifted"),
     ("softmax(Z, axis=1), log_softmax(Z, axis=0)",
      "scipy.special.softmax / log_softmax; a matrix needs axis= (axis=None: all entries)",
-     "S ⊙ (dZ − the row sums of S ⊙ dZ, repeated); computed max-shifted"),
+     "S ∘ (dZ − the row sums of S ∘ dZ, repeated); computed max-shifted"),
     ("abs(x), sign(x)",
      "the absolute value; -1, 0 or 1",
      "sign(x), 0 at x = 0 (the smallest subgradient; JAX gives 1 there); sign has derivative 0"),

@@ -193,6 +193,8 @@ def _table_html(result: CheckResult) -> str:
         for k, v in result.sources.items()
     )
     notes = "".join(f"<p style='color:#8a6d00'>{html.escape(n)}</p>" for n in result.notes)
+    if not rows and result.error is not None:  # nothing was compared: no empty table
+        return notes
     return (
         "<table style='font-size:90%'><thead><tr><th>variable</th><th>along</th>"
         "<th>generated</th><th>finite difference</th><th>relative error</th></tr></thead>"
@@ -458,7 +460,9 @@ class CheckPanel:
                 seed=int(self.seed.value),
                 sizes={},
                 sources={},
-                error=f"{type(err).__name__}: {err}",
+                # our own refusals of what was typed read as sentences; anything else keeps
+                # its exception name, which is what a bug report needs
+                error=str(err) if isinstance(err, ValueError) else f"{type(err).__name__}: {err}",
             )
         result = run_check(
             self.derivation,

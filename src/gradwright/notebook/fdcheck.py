@@ -121,7 +121,8 @@ class CheckResult:
         sizes = ", ".join(f"{k}={v}" for k, v in self.sizes.items())
         return (
             f"{self.verdict}: largest relative error {self.max_rel_error:.2e} {relation} "
-            f"tolerance {self.tolerance:.0e} ({self.method} differences, step {self.step:.1e}, "
+            # the tolerance and step as the panel's boxes show them (three significant digits)
+            f"tolerance {self.tolerance:.3g} ({self.method} differences, step {self.step:.3g}, "
             f"wrt {names}; {sizes or 'no dims'}; seed {self.seed})"
         )
 
@@ -166,6 +167,18 @@ def _structure_fits(value: np.ndarray, structure: tuple) -> bool:
     return True
 
 
+def _dims_words(shape) -> str:
+    inner = ", ".join(str(d) for d in shape)
+    return f"({inner},)" if len(shape) == 1 else f"({inner})"
+
+
+def _misfit_words(actual, declared, bound: dict, set_by: dict) -> str:
+    """'has shape (5,), which does not fit (n,): n = 7 from X' (a predicate after the name)."""
+    known = [f"{d} = {bound[d]} from {set_by[d]}" for d in dict.fromkeys(declared) if d in set_by]
+    why = f": {', '.join(known)}" if known else ""
+    return f"has shape {_dims_words(actual)}, which does not fit {_dims_words(declared)}{why}"
+
+
 def fit_namespace(derivation, namespace: dict, names) -> tuple[dict, dict, dict]:
     """Arrays of `namespace` named as the block's inputs whose shapes and structure fit.
 
@@ -174,6 +187,7 @@ def fit_namespace(derivation, namespace: dict, names) -> tuple[dict, dict, dict]
     """
     arrays: dict = {}
     bound: dict = {}
+    set_by: dict = {}  # dim -> the array that fixed its size, for the message
     refused: dict = {}
     for name in names:
         if name not in namespace:
@@ -192,7 +206,7 @@ def fit_namespace(derivation, namespace: dict, names) -> tuple[dict, dict, dict]
         try:
             value = np.asarray(namespace[name], dtype=complex if is_complex else float)
         except (TypeError, ValueError):
-            refused[name] = "not a numeric array"
+            refused[name] = "is not a numeric array"
             continue
         shape = tuple(info.shape)
         if value.ndim != len(shape):
@@ -208,13 +222,15 @@ def fit_namespace(derivation, namespace: dict, names) -> tuple[dict, dict, dict]
             else:
                 trial[dim] = size
             if not ok:
-                refused[name] = f"shape {value.shape} does not fit {shape} with {bound}"
+                refused[name] = _misfit_words(value.shape, shape, bound, set_by)
                 break
         if not ok:
             continue
         if not _structure_fits(value, tuple(info.structure)):
             refused[name] = f"is not {' '.join(info.structure)}"
             continue
+        for dim in trial:
+            set_by.setdefault(dim, name)
         bound = trial
         arrays[name] = value if value.ndim else float(value)
     return arrays, bound, refused

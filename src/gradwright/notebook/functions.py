@@ -11,6 +11,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from ..errors import frame_named
+
 __all__ = ["Injected", "Packer", "injections"]
 
 _KW = inspect.Parameter.KEYWORD_ONLY
@@ -26,6 +28,22 @@ class Injected:
     describes: str
 
 
+#: the generated code's argument checks: an error raised there is about what the user passed
+_INPUT_CHECKS = frozenset({"_gw_check", "__missing__", "refuse"})
+
+
+def _is_input_error(err: BaseException) -> bool:
+    tb = err.__traceback__
+    while tb is not None:
+        code = tb.tb_frame.f_code
+        if code.co_name in _INPUT_CHECKS and (
+            code.co_filename.startswith("<gradwright") or code.co_name == "refuse"
+        ):
+            return True
+        tb = tb.tb_next
+    return False
+
+
 def _named(fn, name: str, positional, keywords, doc: str):
     def wrapper(*args, **kwargs):
         if len(args) > len(positional):  # name the function the user called, and the fix
@@ -34,9 +52,17 @@ def _named(fn, name: str, positional, keywords, doc: str):
                 f"{name}() got {len(args)} positional arguments: pass arrays by "
                 f"keyword: {name}({shown})"
             )
-        return fn(*args, **kwargs)
+        try:
+            return fn(*args, **kwargs)
+        except (TypeError, ValueError) as err:
+            if not _is_input_error(err):
+                raise
+            # A wrong shape or type is the caller's to fix: the message and the caller's line,
+            # not five frames of dispatch and generated checks and a chained LookupError.
+            raise err.with_traceback(None) from None
 
     wrapper.__name__ = wrapper.__qualname__ = name
+    frame_named(wrapper, name)  # a traceback says grad_loss, not _named.<locals>.wrapper
     wrapper.__doc__ = doc
     wrapper.__module__ = "__main__"
     wrapper.__signature__ = inspect.Signature(

@@ -7,6 +7,7 @@ Load with ``%load_ext gradwright``.
 from __future__ import annotations
 
 import keyword
+import re
 import textwrap
 
 from IPython.core.error import UsageError
@@ -220,7 +221,7 @@ _LANGUAGE_SUMMARY = """
 The formula language (the cell body; NumPy syntax, read but never executed):
 
   X: (n, p)              declaration: a name, its shape in dims; () or `scalar` is a scalar
-  S: (p, p) spd          structure words: symmetric spd diagonal positive orthogonal
+  S: (p, p) spd          structure words: {structures}
   R = X @ B - Y          a definition, usable below; the last definition is the target
   f = trace(R.T @ solve(S, R)) + lam * sum(B**2)
 
@@ -239,27 +240,83 @@ def _help(doc: str, summary: str = "") -> str:
     return doc.rstrip() + "\n" + summary
 
 
+#: the width of `%%derive?` (a pager or an output area wraps longer lines inside words)
+HELP_WIDTH = 92
+#: functions that printed derivatives use and that parse back, but that nobody writes first
+_PRINTED_FORMS = re.compile(r"_(jvp|vjp|frechet\d*|half|weights)$|^kron_contract_|^unvec$")
+
+
 def _function_names() -> str:
     from gradwright.language import parser
     from gradwright.language.registry import CALLS
 
-    names = set(parser.FUNCTIONS) | set(CALLS)
-    listed = ", ".join(sorted(n for n in names if not n.startswith("_"))) + "."
-    return textwrap.fill(
-        "functions: " + listed, width=92, initial_indent="  ", subsequent_indent="    "
+    names = sorted(n for n in set(parser.FUNCTIONS) | set(CALLS) if not n.startswith("_"))
+    written = [n for n in names if not _PRINTED_FORMS.search(n)]
+    printed = [n for n in names if _PRINTED_FORMS.search(n)]
+    text = textwrap.fill(
+        "functions: " + ", ".join(written) + ".",
+        width=HELP_WIDTH,
+        initial_indent="  ",
+        subsequent_indent="    ",
     )
+    if printed:
+        text += "\n" + textwrap.fill(
+            "in printed derivatives (they parse back): " + ", ".join(printed) + ".",
+            width=HELP_WIDTH,
+            initial_indent="  ",
+            subsequent_indent="    ",
+        )
+    return text
 
 
 def _numpy_constructs() -> str:
-    """The NumPy constructs of the formula language, one entry each."""
-    from gradwright.language.help_numpy import numpy_constructs_help
+    """The NumPy constructs of the formula language, one entry each, laid out as the
+    language's other constructs are (written, then what NumPy computes and what is derived)."""
+    from gradwright.language.help_numpy import NUMPY_CONSTRUCTS
 
-    return numpy_constructs_help()
+    lines = ["NumPy's reductions and entrywise functions:"]
+    for written, numpy_does, derives in NUMPY_CONSTRUCTS:
+        lines.append(f"  {written}")
+        lines.append(f"      NumPy: {numpy_does}")
+        lines.append(f"      derived: {derives}")
+    return "\n".join(lines)
+
+
+def _fit(text: str, width: int = HELP_WIDTH) -> str:
+    """Long lines wrapped between words, continuations indented under their line."""
+    out = []
+    for line in text.splitlines():
+        if len(line) <= width:
+            out.append(line)
+            continue
+        indent = line[: len(line) - len(line.lstrip())]
+        out.append(
+            textwrap.fill(
+                line.strip(),
+                width=width,
+                initial_indent=indent,
+                subsequent_indent=indent + "    ",
+                break_long_words=False,
+                break_on_hyphens=False,
+            )
+        )
+    return "\n".join(out)
+
+
+def _structure_words() -> str:
+    from gradwright.language.parser import STRUCTURE_WORDS
+
+    column = len("  S: (p, p) spd          structure words: ")  # continuations align here
+    lines = textwrap.wrap(" ".join(STRUCTURE_WORDS), width=HELP_WIDTH - column)
+    return ("\n" + " " * column).join(lines)
 
 
 GradwrightMagics.derive.__doc__ = _help(
     GradwrightMagics.derive.__doc__ or "",
-    _LANGUAGE_SUMMARY.format(functions=_function_names()) + "\n" + _numpy_constructs() + "\n",
+    _LANGUAGE_SUMMARY.format(functions=_function_names(), structures=_structure_words())
+    + "\n"
+    + _numpy_constructs()
+    + "\n",
 )
 GradwrightMagics.identities.__doc__ = _help(GradwrightMagics.identities.__doc__ or "")
 
@@ -270,4 +327,4 @@ def load_ipython_extension(ipython) -> None:
 
 
 # the formula language's constructs in `%%derive?` (after the help generated from the options)
-GradwrightMagics.derive.__doc__ = (GradwrightMagics.derive.__doc__ or "") + language_help()
+GradwrightMagics.derive.__doc__ = _fit((GradwrightMagics.derive.__doc__ or "") + language_help())

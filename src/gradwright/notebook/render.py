@@ -7,7 +7,6 @@ the terminal alike.
 from __future__ import annotations
 
 import html
-import re
 
 __all__ = [
     "SHOW_CHOICES",
@@ -49,38 +48,9 @@ MATH_BUDGET = 38.0
 
 def _wrap(words: str, width: int = RULE_WIDTH) -> list[str]:
     """Lines of LaTeX for a rule: words wrap between words, a formula is never split."""
-    from gradwright.printing.layout import rule_segments, text_escape
+    from gradwright.printing.layout import rule_lines
 
-    units: list[tuple[str, str, int]] = []  # (LaTeX, kind, visible length)
-    for kind, value in rule_segments(words):
-        if kind == "math":
-            units.append((value, "math", len(value) // 2))
-            continue
-        for word in re.findall(r"\S+\s*", value):
-            units.append((word, "text", len(word)))
-    lines: list[list[tuple[str, str]]] = [[]]
-    used = 0
-    for latex, kind, size in units:
-        if used + size > width and lines[-1]:
-            lines.append([])
-            used = 0
-        lines[-1].append((latex, kind))
-        used += size
-    out = []
-    for line in lines:
-        parts, words_run = [], ""
-        for latex, kind in line:
-            if kind == "text":
-                words_run += latex
-                continue
-            if words_run:
-                parts.append(f"\\text{{{text_escape(words_run)}}}")
-                words_run = ""
-            parts.append(latex)
-        if words_run.strip():
-            parts.append(f"\\text{{{text_escape(words_run.rstrip())}}}")
-        out.append(" ".join(parts))
-    return [line for line in out if line]
+    return rule_lines(words, width)
 
 
 def rule_latex(words: str) -> str:
@@ -255,7 +225,7 @@ def derivation_bundle(derivation, show: str = "steps") -> dict:
 def _shape_text(shape) -> str:
     shape = tuple(shape)
     if not shape:
-        return "scalar"
+        return "()"  # as the symbols' rows above it write a scalar
     return "(" + ", ".join(str(d) for d in shape) + (",)" if len(shape) == 1 else ")")
 
 
@@ -291,6 +261,8 @@ def shape_rows(derivation) -> list[dict]:
         structure = row.get("structure") or ""
         if isinstance(structure, (tuple, list)):
             structure = " ".join(structure)
+        if "field" in row:  # "complex" is the field column's word, not a structure
+            structure = " ".join(w for w in structure.split() if w != "complex")
         rows.append(
             {
                 "symbol": str(row["symbol"]),

@@ -275,7 +275,12 @@ class LatexPrinter(LatexAxisMixin, Printer):
     def _print_Norm(self, e):
         a = e.args[0]
         sub = "_F" if E.is_matrix_shape(a.shape) else ""
-        return rf"\left\lVert {self._print(a)} \right\rVert{sub}"
+        inner = self._print(a)
+        if not any(tall in inner for tall in (r"\frac", r"\left", r"\sum", r"\sqrt")):
+            # MathJax draws \left\lVert around a lowercase x as two tiny bars (seen in the
+            # browser); at text height the fixed-size bars are the right ones anyway
+            return rf"\lVert {inner} \rVert{sub}"
+        return rf"\left\lVert {inner} \right\rVert{sub}"
 
     def _print_LogSumExp(self, e):
         return self.call(r"\operatorname{logsumexp}", e.args[0])

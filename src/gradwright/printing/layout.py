@@ -119,6 +119,14 @@ class LineBreaker:
                 rest = E.mul(E.Const(-coef), *num)
                 sub = self._child(rest, P.ADD + 1)
                 return ["-" + sub[0], *sub[1:]]
+            if (den or coef.denominator != 1) and num:
+                # c/n times a long product: the fraction in front, the product broken after
+                # it (breaking inside \frac{...}{n} would leave its braces open on each line)
+                scale = E.mul(E.Const(coef), *(E.power(d, E.Const(-1)) for d in den))
+                rest = E.mul(*num)
+                return self._pack(
+                    [("", [self.printer.doprint(scale)]), (THIN, self._child(rest, P.PRODUCT + 1))]
+                )
             arrays = [f for f in num if not f.is_scalar]
             if not den and coef == 1 and len(arrays) > 1:
                 scal = [f for f in num if f.is_scalar]
@@ -162,13 +170,35 @@ class LineBreaker:
             if text.count(wrapped) == 1 and (best is None or len(inner) > len(best[1])):
                 best = (c, inner, wrapped)
         if best is None:
-            return [text]
+            return self._around_plain_child(e, text)
         c, inner, wrapped = best
         head, _, tail = text.partition(wrapped)
+        if not _balanced(head):  # inside a \frac{...}: a line must close what it opens
+            return [text]
         sub = self._narrow(latex_width(head) + latex_width(tail) + 1.5, c, inner)
         if len(sub) == 1:
             return [text]
         return [head + r"\Bigl(" + sub[0], *sub[1:-1], sub[-1] + r"\Bigr)" + tail]
+
+    def _around_plain_child(self, e: E.Expr, text: str) -> list[str]:
+        """`head child tail` where the child prints its own parentheses (`\\frac{1}{2}\\,
+        \\operatorname{tr}(...)`): the child is broken where it can be, the rest kept around it."""
+        best = None
+        for c in e.children:
+            inner = self._text(c)
+            if text.count(inner) == 1 and not self._fits(inner):
+                if best is None or len(inner) > len(best[1]):
+                    best = (c, inner)
+        if best is None:
+            return [text]
+        c, inner = best
+        head, _, tail = text.partition(inner)
+        if not _balanced(head):
+            return [text]
+        sub = self._narrow(latex_width(head) + latex_width(tail), c, inner)
+        if len(sub) == 1:
+            return [text]
+        return [head + sub[0], *sub[1:-1], sub[-1] + tail]
 
     def _pack(self, pieces: list[tuple[str, list[str]]]) -> list[str]:
         out: list[str] = []
@@ -188,6 +218,17 @@ class LineBreaker:
         if current:
             out.append(current)
         return out
+
+
+def _balanced(latex: str) -> bool:
+    """Every `{` closed (escaped braces aside): a line of a broken formula stands alone."""
+    depth = 0
+    for m in re.finditer(r"\\[{}]|[{}]", latex):
+        if m.group() == "{":
+            depth += 1
+        elif m.group() == "}":
+            depth -= 1
+    return depth == 0
 
 
 def broken_lines(e: E.Expr, budget: float = 40.0) -> list[str]:
@@ -277,12 +318,67 @@ def rule_math(words: str) -> str:
     return " ".join(parts)
 
 
+#: an equation inside a rule's words ("0 at x = 0"): it wraps as one word
+_WORDS_EQUATION = re.compile(r"(?<=\S) = (?=\S)")
+_WORD_HYPHEN = re.compile(r"(?<=[A-Za-z])-(?=[A-Za-z])")
+
+
+def rule_lines(words: str, width: int = 44) -> list[str]:
+    r"""A rule as lines of LaTeX for math mode, about `width` characters each: words wrap
+    between words ("x = 0" counts as one), a formula is never split.
+
+    >>> rule_lines("sum rule; product rule", 12)
+    ['\\text{sum rule;}', '\\text{product rule}']
+    """
+    units: list[tuple[str, str, int]] = []  # (LaTeX, kind, visible length)
+    for kind, value in rule_segments(words):
+        if kind == "math":
+            units.append((value, "math", len(value) // 2))
+            continue
+        for word in re.findall(r"\S+(?: = \S+)*\s*", value):  # "x = 0" is one word
+            units.append((word, "text", len(word)))
+    lines: list[list[tuple[str, str]]] = [[]]
+    used = 0
+    for latex, kind, size in units:
+        if used + size > width and lines[-1]:
+            lines.append([])
+            used = 0
+        lines[-1].append((latex, kind))
+        used += size
+    out = []
+    for line in lines:
+        parts, words_run = [], ""
+        for latex, kind in line:
+            if kind == "text":
+                words_run += latex
+                continue
+            if words_run:
+                parts.append(f"\\text{{{text_escape(words_run)}}}")
+                words_run = ""
+            parts.append(latex)
+        if words_run.strip():
+            parts.append(f"\\text{{{text_escape(words_run.rstrip())}}}")
+        out.append(" ".join(parts))
+    return [line for line in out if line]
+
+
+def rule_stack(words: str, width: int = 26) -> str:
+    """The rule for a column beside the math: its lines stacked in an array when it wraps
+    (a paper page has no room for a rule written on one line)."""
+    lines = rule_lines(words, width)
+    if len(lines) == 1:
+        return lines[0]
+    return "\\begin{array}{l}" + " \\\\ ".join(lines) + "\\end{array}"
+
+
 def rule_html(words: str) -> str:
     """The rule as HTML: escaped words, formulas as inline math `\\( ... \\)`."""
     parts = []
     for kind, value in rule_segments(words):
         if kind == "text":
-            parts.append(html.escape(value))
+            value = _WORDS_EQUATION.sub("\u00a0=\u00a0", value)
+            # a hyphenated word ("left-hand") wraps as one word: a non-breaking hyphen
+            parts.append(html.escape(_WORD_HYPHEN.sub("\u2011", value)))
         else:
             parts.append(rf"<span class='gradwright-rule-math'>\({html.escape(value)}\)</span>")
     return "".join(parts)

@@ -35,7 +35,7 @@ from .inplace import INPLACE_HELPERS, rewrite_function
 from .runtime import FUNC_CODE, HELPERS  # noqa: F401
 from .shared_eigh import HELPERS as SHARED_EIGH_HELPERS
 from .shared_eigh import shared_matrices
-from .structure import known_spd
+from .structure import cholesky_ok, known_gram, known_spd
 from .text import TextPrinter
 
 HELPERS.update(AXIS_HELPERS)
@@ -70,7 +70,24 @@ class NumpyPrinter(NumpyAxisMixin, TextPrinter):
     def _print_LeastSquares(self, e):
         a, b = e.args
         self.use("_gw_lstsq")
-        return f"_gw_lstsq({self._print(a)}, {self._print(b)}, {self.label(a)})"
+        weighted = type(a).__name__ in ("Whiten", "Colour")  # (the design as the user wrote it)
+        label = self.label(a.args[1] if weighted else a)
+        return f"_gw_lstsq({self._print(a)}, {self._print(b)}, {label})"
+
+    def _print_Whiten(self, e):
+        cho = self._spd_factor(e.args[0])
+        self.use("_gw_cho_whiten")
+        return f"_gw_cho_whiten({cho}, {self._print(e.args[1])})"
+
+    def _print_Colour(self, e):
+        cho = self._spd_factor(e.args[0])
+        self.use("_gw_cho_colour")
+        return f"_gw_cho_colour({cho}, {self._print(e.args[1])})"
+
+    def _print_InverseTrace(self, e):
+        cho = self._spd_factor(e.args[0])
+        self.use("_gw_cho_inv_trace")
+        return f"_gw_cho_inv_trace({cho})"
 
     def _print_CallTimeChoice(self, e):
         own, dist, own_cost, dist_cost = e.args
@@ -316,7 +333,32 @@ class NumpyPrinter(NumpyAxisMixin, TextPrinter):
                 # parenthesized: the parent sees a trace (an atom), not a product
                 return f"({self.wrap(lt)} @ {self.wrap(rt)})"
             return f'np.einsum("ij,ji->", {lt}, {rt})'
+        thin = self._trace_of_solve(a)
+        if thin is not None:
+            return thin
         return f"np.trace({self._print(a)})"
+
+    def _trace_of_solve(self, a: E.Expr) -> str | None:
+        """tr(solve(A, L R)) = Σ solve(A, L) ∘ Rᵀ: a solve with the fewest right-hand sides
+        instead of one with n of them (n³ work for a trace)."""
+        if type(a) is not E.Solve or self.gen.temps.get(a) is not None:
+            return None
+        m, b = a.args
+        fs = b.args if type(b) is E.MatMul else ()
+        if len(fs) < 2:
+            return None
+        cost = self.gen.cost
+        k = min(range(1, len(fs)), key=lambda k: (cost.dim(fs[k - 1].shape[1]), k))
+        inner, n = fs[k - 1].shape[1], m.shape[0]
+        if inner == n:
+            return None
+        left = E.Solve(m, E.matmul(*fs[:k]))
+        right = E.transpose(E.matmul(*fs[k:]))
+        thin = f'np.einsum("ij,ij->", {self._print(left)}, {self._print(right)})'
+        if inner is None:
+            return thin
+        # the sizes decide (n solves against `inner` of them): chosen at call time
+        return f"({thin} if {self.dim(inner)} < {self.dim(n)} else np.trace({self._print(a)}))"
 
     def _print_Sum(self, e):
         a = e.args[0]
@@ -341,7 +383,7 @@ class NumpyPrinter(NumpyAxisMixin, TextPrinter):
         return f"np.sum({self._print(a)})"
 
     def _spd_factor(self, a: E.Expr) -> str | None:
-        if known_spd(a) and self.gen.use_cholesky:
+        if self.gen.use_cholesky and cholesky_ok(a):
             self.use("_gw_cho")
             self.use("_gw_cho_solve")
             return self.gen.cholesky_for(a, self)
@@ -359,7 +401,8 @@ class NumpyPrinter(NumpyAxisMixin, TextPrinter):
         a = e.args[0]
         cho = self._spd_factor(a)
         if cho is not None:
-            return f"_gw_cho_solve({cho}, np.eye({self.dim(a.shape[0])}, dtype=_dims.dtype))"
+            self.use("_gw_cho_inv")
+            return f"_gw_cho_inv({cho})"
         self.use("_gw_inv")
         return f"_gw_inv({self._print(a)}, {self.label(a)})"
 
@@ -535,12 +578,22 @@ class CodeGen:
         return name
 
     def cholesky_for(self, a: E.Expr, printer: NumpyPrinter) -> str:
+        if type(a) is E.Transpose:  # an spd matrix is its transpose: one factor for both
+            a = a.args[0]
         name = self.cholesky.get(a)
         if name is None:
             name = f"_chol{len(self.cholesky)}"
             self.cholesky[a] = name
             self.uses_scipy = True
-            declared = "" if E.is_spd(a) else ", False"
+            declared = (
+                ""
+                if E.is_spd(a)
+                else ", False"
+                if known_spd(a)
+                else ", 'gram'"
+                if known_gram(a)
+                else ", False"
+            )
             factor = f"_gw_cho({printer._print(a)}, {printer.label(a)}{declared})"
             self.lines.append(f"    {name} = {factor}")
         return name
@@ -780,6 +833,8 @@ def module(header: str, functions: list[str], helpers: set, uses_scipy: bool) ->
     that factors an spd matrix)."""
     lines = [header, "import cmath", "import warnings", "", "import numpy as np"]
     lines.append("")
+    if any(h.startswith("_gw_cho") for h in helpers):  # the LAPACK look-up they all use
+        helpers = {*helpers, "_gw_lapack"}
     for name in sorted(helpers):
         lines.append(HELPERS[name].rstrip())
         lines.append("")
