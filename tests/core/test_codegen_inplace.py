@@ -287,3 +287,15 @@ def test_arithmetic_of_vectors_keeps_the_plain_operators():
     # a matrix inside a line whose value is a vector is still written into
     text = rewrite_line("np.sum(X * (Y @ X.T), axis=1) - y", set(), ndims=ndims)[0]
     assert text == "np.sum(_gw_imul(Y @ X.T, X), axis=1) - y"
+
+
+def test_vector_lines_are_left_as_written():
+    """A vector is cheap to allocate and a helper call shows at small sizes: least squares'
+    gradient is the plain expression (the in-place pass rewrites matrix lines only)."""
+    from gradwright import derive
+
+    d = derive("X: (n, p)\ny: (n,)\nw: (p,)\nf = sum((X @ w - y)**2)", wrt="w")
+    source = d.source()
+    assert "_gw_i" not in source and "_gw_rsub" not in source, source
+    m = derive("X: (n, p)\nW: (p, k)\nY: (n, k)\nf = sum((X @ W - Y)**2)", wrt="W").source()
+    assert "_gw_isub(X @ W, Y)" in m  # a matrix line still is rewritten

@@ -194,7 +194,9 @@ class _InPlace(ast.NodeTransformer):
         evaluated before the write."""
         if _is_scalar(operand, self.scalars):
             return False
-        if _ndim(within, self.scalars, self.vectors) == 1:
+        if (_ndim(within, self.scalars, self.vectors) or 0) <= 1 and (
+            _ndim(within, self.scalars, self.vectors) is not None
+        ):
             # vectors: a new one is cheap next to the helper call (a matrix intermediate
             # inside still counts, it is checked on its own)
             return False
@@ -322,10 +324,11 @@ _ASSIGN = re.compile(r"^    ([A-Za-z_]\w*) = (.+)$")
 
 
 def rewrite_function(
-    lines: list, tail: str, scalars: set, ndims: dict | None = None
+    lines: list, tail: str, scalars: set, ndims: dict | None = None, keep: set = frozenset()
 ) -> tuple[list, set]:
     """The body lines of one generated function with the in-place pass applied to every
-    assignment; `tail` is the code after them (returns, loops), which reads what it names.
+    assignment but those of the names in `keep`; `tail` is the code after them (returns,
+    loops), which reads what it names.
 
     A named array is *owned* by the one line that reads it when it was defined by
     arithmetic (a new array, no view of anything) and no other line nor the tail mentions
@@ -343,9 +346,10 @@ def rewrite_function(
         if m is None:
             continue
         name, text = m.groups()
-        text, helpers = rewrite_line(text, scalars, owned_at.get(i, set()), ndims)
-        out[i] = f"    {name} = {text}"
-        used |= helpers
+        if name not in keep:
+            text, helpers = rewrite_line(text, scalars, owned_at.get(i, set()), ndims)
+            out[i] = f"    {name} = {text}"
+            used |= helpers
         readers = [j for j in mentions.get(name, []) if j != i]
         if (
             len(readers) == 1

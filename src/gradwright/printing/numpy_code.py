@@ -708,7 +708,11 @@ class CodeGen:
             known = [(n, s.shape) for n, s in self.symbols.items()]
             known += [(v, k.shape) for k, v in self.temps.items() if "." not in v]
             known += [(o.name, o.shape) for o in spec.outputs]
+            if direction is not None:  # the direction or cotangent parameter
+                known.append((direction[0], direction[2]))
             scalars = {n for n, shape in known if E.is_scalar_shape(shape)}
+            # a new vector is cheaper than a helper call: operations whose result is a vector
+            # keep the plain operators (per operation, so a matrix inside a vector line is not)
             ndims = {n: 2 - [d is None for d in shape].count(True) for n, shape in known}
             self.lines, used = rewrite_function(self.lines, "\n".join(tail), scalars, ndims)
             self.helpers.update(used)
