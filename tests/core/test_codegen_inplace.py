@@ -277,6 +277,18 @@ def test_common_factors_of_a_sum_are_taken_out():
     np.testing.assert_allclose(grad, np.asarray(want), rtol=1e-10, atol=1e-12)
 
 
+def test_arithmetic_of_vectors_keeps_the_plain_operators():
+    """A new vector costs less than the helper call: only matrix results are written into."""
+    ndims = {"X": 2, "Y": 2, "w": 1, "y": 1}
+    assert rewrite_line("2 * (X.T @ (X @ w - y))", set(), ndims=ndims) == (
+        "2 * (X.T @ (X @ w - y))",
+        set(),
+    )
+    # a matrix inside a line whose value is a vector is still written into
+    text = rewrite_line("np.sum(X * (Y @ X.T), axis=1) - y", set(), ndims=ndims)[0]
+    assert text == "np.sum(_gw_imul(Y @ X.T, X), axis=1) - y"
+
+
 def test_vector_lines_are_left_as_written():
     """A vector is cheap to allocate and a helper call shows at small sizes: least squares'
     gradient is the plain expression (the in-place pass rewrites matrix lines only)."""

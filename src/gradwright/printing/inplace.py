@@ -154,9 +154,35 @@ INTO_VARIANTS = {"_gw_softmax_axis": "_gw_softmax_axis_into"}
 DEPENDS = {"_gw_softmax_axis_into": "_gw_softmax_axis"}
 
 
+def _ndim(node: ast.AST, scalars: set, vectors: dict) -> int | None:
+    """0, 1 or 2 when the syntax and the known names tell the value's number of axes (at
+    most), None when they do not."""
+    if _is_scalar(node, scalars):
+        return 0
+    if isinstance(node, ast.Name):
+        return vectors.get(node.id)
+    if isinstance(node, ast.Attribute) and node.attr == "T":
+        return _ndim(node.value, scalars, vectors)
+    if isinstance(node, ast.UnaryOp):
+        return _ndim(node.operand, scalars, vectors)
+    if isinstance(node, ast.BinOp):
+        a, b = _ndim(node.left, scalars, vectors), _ndim(node.right, scalars, vectors)
+        if a is None or b is None:
+            return None
+        if isinstance(node.op, ast.MatMult):
+            return max(a + b - 2, 0) if a and b else max(a, b)
+        return max(a, b)
+    if isinstance(node, ast.Call):
+        args = [_ndim(x, scalars, vectors) for x in node.args]
+        if _is_fresh(node) and args and None not in args:
+            return max(args)  # a ufunc or an in-place helper: shaped like its operands
+    return None
+
+
 class _InPlace(ast.NodeTransformer):
-    def __init__(self, scalars: set, owned: set, counts: dict):
+    def __init__(self, scalars: set, owned: set, counts: dict, ndims: dict | None = None):
         self.scalars = scalars
+        self.vectors = ndims or {}  # name -> its number of axes, where known
         self.owned = owned  # named arrays of the function this line may consume
         self.counts = counts  # occurrences of each name in the whole line
         self.used: set = set()
@@ -167,6 +193,12 @@ class _InPlace(ast.NodeTransformer):
         the caller's promise for `owned`) but inside `within`, so every other read of it is
         evaluated before the write."""
         if _is_scalar(operand, self.scalars):
+            return False
+        if (_ndim(within, self.scalars, self.vectors) or 0) <= 1 and (
+            _ndim(within, self.scalars, self.vectors) is not None
+        ):
+            # vectors: a new one is cheap next to the helper call (a matrix intermediate
+            # inside still counts, it is checked on its own)
             return False
         if _is_fresh(operand):
             return True
@@ -248,11 +280,14 @@ def _rebuild(factors: list, like: ast.AST) -> ast.AST:
     return ast.copy_location(out, like)
 
 
-def rewrite_line(text: str, scalars: set, owned: set = frozenset()) -> tuple[str, set]:
+def rewrite_line(
+    text: str, scalars: set, owned: set = frozenset(), ndims: dict | None = None
+) -> tuple[str, set]:
     """`text` (one Python expression of generated code) with in-place arithmetic where an
     operand is an array of its own; returns the new text and the helpers it calls.
 
-    `scalars` names variables that hold numbers (no helper is wrapped around them); `owned`
+    `scalars` names variables that hold numbers and `ndims` gives the number of axes of the
+    names it knows (no helper is wrapped around arithmetic whose result is 1-D); `owned`
     names arrays of the function that no later line reads and that are no view of anything
     (defined by arithmetic): this line may write into one where all its reads are evaluated
     before the write.
@@ -266,6 +301,8 @@ def rewrite_line(text: str, scalars: set, owned: set = frozenset()) -> tuple[str
     '_gw_apply(np.tanh, _gw_iadd(X @ W, b))'
     >>> rewrite_line("2 * c * X", {"c"})[0]
     '2 * c * X'
+    >>> rewrite_line("2 * (X.T @ (X @ w - y))", set(), ndims={"X": 2, "w": 1, "y": 1})[0]
+    '2 * (X.T @ (X @ w - y))'
     >>> rewrite_line("2 * c * A * (G - S)", {"c"})[0]
     '_gw_imul(_gw_imul(G - S, A), 2 * c)'
     >>> rewrite_line("A * (G - np.sum(A * G, axis=1))", set(), {"G"})[0]
@@ -275,7 +312,7 @@ def rewrite_line(text: str, scalars: set, owned: set = frozenset()) -> tuple[str
     counts: dict = {}
     for name in _names(tree):
         counts[name] = counts.get(name, 0) + 1
-    pass_ = _InPlace(scalars, set(owned), counts)
+    pass_ = _InPlace(scalars, set(owned), counts, ndims)
     new = pass_.visit(tree)
     if not pass_.used:
         return text, set()
@@ -287,7 +324,7 @@ _ASSIGN = re.compile(r"^    ([A-Za-z_]\w*) = (.+)$")
 
 
 def rewrite_function(
-    lines: list, tail: str, scalars: set, keep: set = frozenset()
+    lines: list, tail: str, scalars: set, ndims: dict | None = None, keep: set = frozenset()
 ) -> tuple[list, set]:
     """The body lines of one generated function with the in-place pass applied to every
     assignment but those of the names in `keep`; `tail` is the code after them (returns,
@@ -310,7 +347,7 @@ def rewrite_function(
             continue
         name, text = m.groups()
         if name not in keep:
-            text, helpers = rewrite_line(text, scalars, owned_at.get(i, set()))
+            text, helpers = rewrite_line(text, scalars, owned_at.get(i, set()), ndims)
             out[i] = f"    {name} = {text}"
             used |= helpers
         readers = [j for j in mentions.get(name, []) if j != i]

@@ -705,13 +705,16 @@ class CodeGen:
         tail = [spec.loop] if spec.loop else []
         tail.append(f"    return {spec.returns}")
         if self.in_place:  # arithmetic written into the arrays this function owns
-            scalars = {n for n, s in self.symbols.items() if E.is_scalar_shape(s.shape)}
-            scalars.update(v for k, v in self.temps.items() if E.is_scalar_shape(k.shape))
-            # a vector is cheap to allocate, and a helper call shows at small sizes: only
-            # lines that compute a matrix are rewritten
-            small = {v for k, v in self.temps.items() if not E.is_matrix_shape(k.shape)}
-            small.update(o.name for o in spec.outputs if not E.is_matrix_shape(o.shape))
-            self.lines, used = rewrite_function(self.lines, "\n".join(tail), scalars, small)
+            known = [(n, s.shape) for n, s in self.symbols.items()]
+            known += [(v, k.shape) for k, v in self.temps.items() if "." not in v]
+            known += [(o.name, o.shape) for o in spec.outputs]
+            if direction is not None:  # the direction or cotangent parameter
+                known.append((direction[0], direction[2]))
+            scalars = {n for n, shape in known if E.is_scalar_shape(shape)}
+            # a new vector is cheaper than a helper call: operations whose result is a vector
+            # keep the plain operators (per operation, so a matrix inside a vector line is not)
+            ndims = {n: 2 - [d is None for d in shape].count(True) for n, shape in known}
+            self.lines, used = rewrite_function(self.lines, "\n".join(tail), scalars, ndims)
             self.helpers.update(used)
         body = head + self.lines + tail
         self.directions = {}
