@@ -25,6 +25,7 @@ __all__ = [
     "SHAPES",
     "DEFAULT_SIZES",
     "assert_close",
+    "sizes_as_numbers",
     "central_difference_check",
     "dim_size",
     "jax_grad",
@@ -683,3 +684,22 @@ def _matrix_function_references() -> dict:
 
 
 _JAX_FUNCS.update(_matrix_function_references())
+
+
+# --- text forms ------------------------------------------------------------------------------
+
+
+def sizes_as_numbers(e, head: str, target: str):
+    """e with tr(I_n), tr(1 1ᵀ) and sum(ones) replaced by the size they are, as the reader reads
+    the text and LaTeX forms that show them as `n` (they are equal, the trees differ)."""
+    from gradwright import expr as E
+    from gradwright.language import parse_block
+    from gradwright.printing import text
+
+    mapping = {
+        n: parse_block(head + f"{target} = {text(n)}").expr
+        for n in E.walk(e)
+        if (type(n) is E.Trace and type(n.args[0]) in (E.Identity, E.Ones))
+        or (type(n) is E.Sum and type(n.args[0]) is E.Ones)
+    }
+    return E.substitute(e, mapping) if mapping else e

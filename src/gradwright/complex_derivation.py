@@ -13,9 +13,8 @@ from . import expr as E
 from .calculus import kronecker_form
 from .calculus import wirtinger as W
 from .complex_nodes import Conj, Real, is_complex_symbol, is_hermitian_symbol
-from .derivation import MAX_HESSIAN_GRADIENT, MAX_STEPS, Derivation, Step, SymbolInfo, _ret
+from .derivation import MAX_STEPS, Derivation, Step, SymbolInfo
 from .errors import FormulaError, NotSupportedError
-from .printing import numpy_code as C
 from .printing import symbol_latex
 from .simplify import simplify
 
@@ -274,89 +273,40 @@ class ComplexDerivation(Derivation):
 
     # --- generated code --------------------------------------------------------------------------
 
-    def _specs(self, sizes: dict | None = None) -> list:
-        tgt_shape = self.expr.shape
-        cost = self._cost(sizes)
-        gen = C.CodeGen(self.block.declarations, self.arguments(), cost, use_cholesky=True)
-        gen.complex_directions = True
-        value = self.expr
-        if self.is_scalar and self.target_is_real and W.has_complex(value):
-            value = Real(value)  # exactly real: drop the rounding-level imaginary part
-        value = C.lower(value, cost)
-        specs = [
-            C.FunctionSpec(
-                "value",
-                f"The value of {self.target}.",
-                [C.Output("_value", value, tgt_shape, "the value")],
-                _ret("_value", tgt_shape),
+    # the hooks of the shared builder of generated functions (function_specs.py)
+    _code_dense = False  # dense Jacobians and Hessians: refused below
+
+    @property
+    def _code_has_gradients(self) -> bool:
+        return self.is_scalar and self.target_is_real
+
+    def _code_value(self) -> E.Expr:
+        if self.is_scalar and self.target_is_real and W.has_complex(self.expr):
+            return Real(self.expr)  # exactly real: drop the rounding-level imaginary part
+        return self.expr
+
+    def _code_vjp(self, v: str) -> E.Expr:
+        return self._raw_gradient(v, True)
+
+    def _code_doc(self, kind: str, v: str | None) -> str:
+        t = self.target
+        if kind == "gradient":
+            return f"The gradient of {t} with respect to {v} (shaped like {v}); " + (
+                CONVENTION.replace("Z", v) if is_complex_symbol(self._vars[v]) else "real."
             )
-        ]
-        real_scalar = self.is_scalar and self.target_is_real
-        if real_scalar:
-            both = [C.Output("_value", value, tgt_shape, "the value")]
-            free = frozenset(E.walk(value))
-            for v in self.variables:
-                g = self._gradient(v)
-                doc = f"The gradient of {self.target} with respect to {v} (shaped like {v}); " + (
-                    CONVENTION.replace("Z", v) if is_complex_symbol(self._vars[v]) else "real."
-                )
-                out = C.Output(f"_grad_{v}", C.lower(g, cost), self._vars[v].shape, "gradient")
-                specs.append(C.FunctionSpec(f"gradient_{v}", doc, [out], f"_grad_{v}"))
-                gl = C.lower(g, cost, free)
-                both.append(C.Output(f"_grad_{v}", gl, self._vars[v].shape, f"the gradient of {v}"))
-            rets = ", ".join(f"_grad_{v}" for v in self.variables)
-            if len(self.variables) > 1:
-                rets = f"({rets})"
-            specs.append(
-                C.FunctionSpec(
-                    "value_and_gradient",
-                    f"The value of {self.target} and its gradient.",
-                    both,
-                    f"{_ret('_value', tgt_shape)}, {rets}",
-                )
+        if kind == "value_and_gradient":
+            return f"The value of {t} and its gradient."
+        if kind == "jvp":
+            return f"d{t} along the direction d{v} (complex; conj(d{v}) is implied)."
+        if kind == "vjp":
+            return (
+                f"The vector-Jacobian product under Re tr(Aᴴ B) with a cotangent shaped "
+                f"like {t} (result shaped like {v})."
             )
-        for v in self.variables:
-            sym = self._vars[v]
-            lin = C.lower(self._differential((v,)), cost)
-            specs.append(
-                C.FunctionSpec(
-                    f"jvp_{v}",
-                    f"d{self.target} along the direction d{v} (complex; conj(d{v}) is implied).",
-                    [C.Output("_jvp", lin, tgt_shape, "the directional derivative")],
-                    _ret("_jvp", tgt_shape),
-                    direction=("_direction", v, sym.shape),
-                )
-            )
-            vjp = C.lower(self._raw_gradient(v, True), cost)
-            specs.append(
-                C.FunctionSpec(
-                    f"vjp_{v}",
-                    f"The vector-Jacobian product under Re tr(Aᴴ B) with a cotangent shaped "
-                    f"like {self.target} (result shaped like {v}).",
-                    [C.Output("_vjp", vjp, sym.shape, "the vector-Jacobian product")],
-                    "_vjp",
-                    direction=("_cotangent", "_cotangent", tgt_shape),
-                )
-            )
-            if real_scalar:
-                if E.expanded_size(self._gradient(v), MAX_HESSIAN_GRADIENT) > MAX_HESSIAN_GRADIENT:
-                    continue
-                try:
-                    hv = C.lower(self._hvp_expr(v), cost)
-                except NotSupportedError:
-                    continue
-                specs.append(
-                    C.FunctionSpec(
-                        f"hvp_{v}",
-                        f"The Hessian of {self.target} over the real and imaginary parts of "
-                        f"{v}, applied to a direction V (packed as Re + i Im, like the "
-                        "gradient).",
-                        [C.Output("_hvp", hv, sym.shape, "the Hessian-vector product")],
-                        "_hvp",
-                        direction=("_direction", v, sym.shape),
-                    )
-                )
-        return gen, specs
+        return (
+            f"The Hessian of {t} over the real and imaginary parts of {v}, applied to a "
+            "direction V (packed as Re + i Im, like the gradient)."
+        )
 
     def jacobian_function(self, var: str | None = None):
         raise NotSupportedError(

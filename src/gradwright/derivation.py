@@ -12,7 +12,9 @@ from dataclasses import dataclass
 
 from . import expr as E
 from .calculus import adjoint, differential, expand_once, has_pending, kronecker_form
+from .derivation_functions import DerivationFunctions
 from .errors import FormulaError, NotSupportedError, ShapeError, frame_named
+from .function_specs import MAX_HESSIAN_GRADIENT, build_specs  # noqa: F401
 from .language import Block
 from .matrix_checks import adjust_samples
 from .matrix_functions import NODES as _MATRIX_NODES
@@ -27,8 +29,6 @@ MAX_STEPS = 40
 #: the widest line of a printed step, in ems, before it breaks at an operator (with the rule
 #: column beside it, a line fits an A4 page with 1.5 cm margins: to_latex is checked by pdflatex)
 LINE_BUDGET = 30.0
-#: Hessian-vector products are generated only for gradients up to this size (written out)
-MAX_HESSIAN_GRADIENT = 2_000
 
 
 def _memoized(method):
@@ -70,7 +70,7 @@ class Step:
         return text(self.expr)
 
 
-class Derivation:
+class Derivation(DerivationFunctions):
     """The result of `derive()`; see docs in README for the full tour.
 
     >>> from gradwright import derive
@@ -407,133 +407,39 @@ class Derivation:
         hints = {**(sizes or {}), **self.size_hints}
         return C.CostModel(C.guess_sizes(self.expr, hints), hinted=hints)
 
-    def _specs(self, sizes: dict | None = None) -> list:
-        tgt_shape = self.expr.shape
-        cost = self._cost(sizes)
-        gen = C.CodeGen(self.block.declarations, self.arguments(), cost, use_cholesky=True)
-        value = C.lower(self.expr, cost)
-        specs = [
-            C.FunctionSpec(
-                "value",
-                f"The value of {self.target}.",
-                [C.Output("_value", value, tgt_shape, "the value")],
-                _ret("_value", tgt_shape),
+    # the hooks of the shared builder of generated functions (function_specs.py)
+    _code_dense = True  # dense Jacobians and Hessians
+
+    @property
+    def _code_has_gradients(self) -> bool:
+        return self.is_scalar
+
+    def _code_value(self) -> E.Expr:
+        return self.expr
+
+    def _code_vjp(self, v: str) -> E.Expr:
+        return _project(self._raw_gradient(v, True), self._vars[v])
+
+    def _code_doc(self, kind: str, v: str | None) -> str:
+        t = self.target
+        if kind == "gradient":
+            return f"The gradient of {t} with respect to {v} (shaped like {v})."
+        if kind == "value_and_gradient":
+            several = len(self.variables) > 1
+            return f"The value of {t} and its gradient" + (
+                " (a tuple, in the order of the variables)." if several else "."
             )
-        ]
-        if self.is_scalar:
-            for v in self.variables:
-                gl = C.lower(self._gradient(v), cost)
-                specs.append(
-                    C.FunctionSpec(
-                        f"gradient_{v}",
-                        f"The gradient of {self.target} with respect to {v} (shaped like {v}).",
-                        [C.Output(f"_grad_{v}", gl, self._vars[v].shape, f"the gradient of {v}")],
-                        f"_grad_{v}",
-                    )
-                )
-            # the value's subexpressions are computed anyway: free for the gradients here
-            free = frozenset(E.walk(value))
-            both = [C.Output("_value", value, tgt_shape, "the value")]
-            for v in self.variables:
-                gl = C.lower(self._gradient(v), cost, free)
-                both.append(C.Output(f"_grad_{v}", gl, self._vars[v].shape, f"the gradient of {v}"))
-            rets = ", ".join(f"_grad_{v}" for v in self.variables)
-            if len(self.variables) > 1:
-                rets = f"({rets})"
-            specs.append(
-                C.FunctionSpec(
-                    "value_and_gradient",
-                    f"The value of {self.target} and its gradient"
-                    + (
-                        " (a tuple, in the order of the variables)."
-                        if len(self.variables) > 1
-                        else "."
-                    ),
-                    both,
-                    f"{_ret('_value', tgt_shape)}, {rets}",
-                )
+        if kind == "jvp":
+            return f"d{t} along the direction d{v} (shaped like {t})."
+        if kind == "vjp":
+            return (
+                f"The vector-Jacobian product with a cotangent shaped like {t} "
+                f"(result shaped like {v})."
             )
-        for v in self.variables:
-            sym = self._vars[v]
-            lin = C.lower(self._differential((v,)), cost)
-            specs.append(
-                C.FunctionSpec(
-                    f"jvp_{v}",
-                    f"d{self.target} along the direction d{v} (shaped like {self.target}).",
-                    [C.Output("_jvp", lin, tgt_shape, "the directional derivative")],
-                    _ret("_jvp", tgt_shape),
-                    direction=("_direction", v, sym.shape),
-                )
-            )
-            vjp = self._raw_gradient(v, True)
-            vjp = C.lower(_project(vjp, sym), cost)
-            specs.append(
-                C.FunctionSpec(
-                    f"vjp_{v}",
-                    f"The vector-Jacobian product with a cotangent shaped like {self.target} "
-                    f"(result shaped like {v}).",
-                    [C.Output("_vjp", vjp, sym.shape, "the vector-Jacobian product")],
-                    "_vjp",
-                    direction=("_cotangent", "_cotangent", tgt_shape),
-                )
-            )
-            n_in = _size_code(sym.shape)
-            n_out = _size_code(tgt_shape)
-            call_args = ", ".join(f"{a}={a}" for a in gen.required)
-            reshape_in = _reshape_code(sym.shape)
-            specs.append(
-                C.FunctionSpec(
-                    f"jacobian_{v}",
-                    f"The dense Jacobian d vec({self.target}) / d vec({v})^T (column-major vec); "
-                    "for small sizes.",
-                    [],
-                    "_jac",
-                    loop=(
-                        f"    _n_in, _n_out = {n_in}, {n_out}\n"
-                        "    _jac = np.empty((_n_out, _n_in), dtype=_dims.dtype)\n"
-                        "    for _k in range(_n_in):\n"
-                        "        _e = np.zeros(_n_in, dtype=_dims.dtype)\n"
-                        "        _e[_k] = 1.0\n"
-                        f'        _col = _gw_functions["jvp_{v}"]({reshape_in}, {call_args})\n'
-                        '        _jac[:, _k] = np.reshape(_col, -1, order="F")'
-                    ),
-                )
-            )
-            if self.is_scalar:
-                if E.expanded_size(self._gradient(v), MAX_HESSIAN_GRADIENT) > MAX_HESSIAN_GRADIENT:
-                    continue  # second derivatives of so large a gradient: not generated
-                try:
-                    hv = C.lower(self._hvp_expr(v), cost)
-                except NotSupportedError:
-                    continue
-                specs.append(
-                    C.FunctionSpec(
-                        f"hvp_{v}",
-                        f"The Hessian of {self.target} with respect to {v} applied to a "
-                        f"direction shaped like {v}.",
-                        [C.Output("_hvp", hv, sym.shape, "the Hessian-vector product")],
-                        "_hvp",
-                        direction=("_direction", v, sym.shape),
-                    )
-                )
-                specs.append(
-                    C.FunctionSpec(
-                        f"hessian_{v}",
-                        f"The dense Hessian of {self.target} over column-major vec({v}).",
-                        [],
-                        "_hess",
-                        loop=(
-                            f"    _n_in = {n_in}\n"
-                            "    _hess = np.empty((_n_in, _n_in), dtype=_dims.dtype)\n"
-                            "    for _k in range(_n_in):\n"
-                            "        _e = np.zeros(_n_in, dtype=_dims.dtype)\n"
-                            "        _e[_k] = 1.0\n"
-                            f'        _col = _gw_functions["hvp_{v}"]({reshape_in}, {call_args})\n'
-                            '        _hess[:, _k] = np.reshape(_col, -1, order="F")'
-                        ),
-                    )
-                )
-        return gen, specs
+        return f"The Hessian of {t} with respect to {v} applied to a direction shaped like {v}."
+
+    def _specs(self, sizes: dict | None = None) -> tuple:
+        return build_specs(self, sizes)
 
     def source(self, backend: str = "numpy", sizes: dict | None = None) -> str:
         """The generated Python module: NumPy (SciPy only for spd Cholesky factors), or with
@@ -596,138 +502,6 @@ class Derivation:
         from .backends import dispatching  # NumPy arguments go straight to ns[name]
 
         return dispatching(self, name, ns)  # (arrays by position refused there, in words)
-
-    def function(self):
-        """f(**arrays) -> the value of the target."""
-        return self._fn("value")
-
-    def gradient_function(self, *vars_: str):
-        """g(**arrays) -> the gradient (a tuple in wrt order for several variables)."""
-        if not self.is_scalar:
-            self.gradient(vars_[0] if vars_ else None)  # raises the explanatory error
-        if len(vars_) == 1 and isinstance(vars_[0], (list, tuple)):
-            vars_ = tuple(vars_[0])
-        if not vars_:
-            vars_ = self.variables
-        names = [self._check_var(v) for v in vars_]
-        if len(names) == 1:
-            return self._fn(f"gradient_{names[0]}")
-        fns = [self._fn(f"gradient_{v}") for v in names]
-        if tuple(names) == self.variables:
-            both = self._fn("value_and_gradient")
-
-            def gradients(**arrays):
-                return both(**arrays)[1]
-
-        else:
-
-            def gradients(**arrays):
-                return tuple(f(**arrays) for f in fns)
-
-        gradients.__doc__ = f"The gradients of {self.target} with respect to {', '.join(names)}."
-        gradients.__name__ = "gradients"
-        return gradients
-
-    def value_and_gradient_function(self):
-        """vg(**arrays) -> (value, gradient or tuple of gradients), sharing subexpressions."""
-        if not self.is_scalar:
-            self.gradient(None)
-        return self._fn("value_and_gradient")
-
-    def jvp_function(self, var: str | None = None):
-        return self._fn(f"jvp_{self._check_var(var)}")
-
-    def vjp_function(self, var: str | None = None):
-        return self._fn(f"vjp_{self._check_var(var)}")
-
-    def jacobian_function(self, var: str | None = None):
-        return self._fn(f"jacobian_{self._check_var(var)}")
-
-    def hvp_function(self, *vars_: str, var: str | None = None):
-        """hvp(V, **arrays): one variable as today (V shaped like it); with no variable named
-        and several in the derivation, or several named, V and the result are packed vectors
-        (the layout of `objective()`), cross blocks included."""
-        if len(vars_) == 1 and isinstance(vars_[0], (list, tuple)):
-            vars_ = tuple(vars_[0])
-        if var is None and (len(vars_) > 1 or (not vars_ and len(self.variables) > 1)):
-            from .fitting import packed_hvp_function
-
-            return packed_hvp_function(self, vars_ or self.variables)
-        v = self._check_var(var if var is not None else (vars_[0] if vars_ else None))
-        if not self.is_scalar:
-            self.gradient(v)
-        return self._fn(f"hvp_{v}")
-
-    def hessian_function(self, *vars_: str, var: str | None = None):
-        """h(**arrays): the dense Hessian over column-major vec X for one variable; with no
-        variable named and several in the derivation, or several named, one matrix over the
-        packed vector (the layout of `objective()`), cross blocks included."""
-        if len(vars_) == 1 and isinstance(vars_[0], (list, tuple)):
-            vars_ = tuple(vars_[0])
-        if var is None and (len(vars_) > 1 or (not vars_ and len(self.variables) > 1)):
-            from .fitting import packed_hessian_function
-
-            return packed_hessian_function(self, vars_ or self.variables)
-        v = self._check_var(var if var is not None else (vars_[0] if vars_ else None))
-        if not self.is_scalar:
-            self.gradient(v)
-        return self._fn(f"hessian_{v}")
-
-    def stationary_point(self, var: str | None = None):
-        """The closed-form solution of 'gradient = 0' where one exists."""
-        from .calculus.stationary import stationary_point
-
-        v = self._check_var(var)
-        return stationary_point(self, v)
-
-    # --- fitting (the machinery lives in fitting.py and calculus/hessian.py) --------------------
-
-    def _block_hvp(self):
-        if "_block_hvp_fn" not in self.__dict__:
-            from .calculus.hessian import block_hvp_function
-
-            if not self.is_scalar:
-                self.gradient(self.variables[0])
-            self._block_hvp_fn = block_hvp_function(self)
-        return self._block_hvp_fn
-
-    def objective(self, *, args=(), **constants):
-        """The optimizer objective over the packed variables: `obj(flat, *args)` returns
-        `(value, packed gradient)`; `obj.hess`, `obj.hessp`, `obj.pack`, `obj.unpack`.
-        Constants are given here by name, or named in `args` and passed positionally after
-        the vector (as `scipy.optimize.minimize(obj, x0, args=(X, y), jac=True)` does)."""
-        from .fitting import Objective
-
-        return Objective(self, args, constants)
-
-    def second_derivative(self, first: str, second: str):
-        """The mixed second derivative of a scalar target in `first` and `second`:
-        d(∂f/∂first) along d(second), and its Kronecker form when one exists (`.latex()`)."""
-        from .calculus.hessian import mixed_derivative
-
-        first, second = self._check_var(first), self._check_var(second)
-        if not self.is_scalar:
-            self.gradient(first)
-        return mixed_derivative(self, first, second)
-
-    def values(self, **arrays) -> dict:
-        """{definition: value} for every definition of the block and the target, sharing work."""
-        if "_values_fn" not in self.__dict__:
-            from .fitting import values_function
-
-            self._values_fn = values_function(self)
-        return self._values_fn(**arrays)
-
-    def standard_errors(self, **arrays) -> dict:
-        """For a negative log-likelihood target at its minimum: {variable: standard errors
-        shaped like the variable}, the square roots of the diagonal of the inverse block
-        Hessian over the packed variables. Raises FormulaError if the Hessian is not positive
-        definite there."""
-        from .fitting import standard_errors
-
-        if not self.is_scalar:
-            self.gradient(self.variables[0])
-        return standard_errors(self, arrays)
 
 
 def _api_boundary(method):
@@ -832,31 +606,3 @@ def _pairing(g: E.Expr, sym: E.Symbol) -> E.Expr:
 
 def _cotangent(shape) -> E.Expr:
     return E.Differential(E.Symbol("_cotangent", shape, frozenset()))
-
-
-def _ret(name: str, shape) -> str:
-    if not E.is_scalar_shape(shape):
-        return name
-    # a NumPy scalar as it is (the common case, and no call); a 0-d array or number made one
-    return f"({name} if isinstance({name}, np.generic) else np.asarray({name})[()])"
-
-
-def _size_code(shape) -> str:
-    dims = [d for d in shape if d is not None]
-    if not dims:
-        return "1"
-    parts = []
-    for d in dims:
-        parts.extend(f'_dims["{n}"]' for n in d.names)
-        if d.coef != 1 or not d.names:
-            parts.append(str(d.coef))
-    return " * ".join(parts)
-
-
-def _reshape_code(shape) -> str:
-    r, c = shape
-    if r is None and c is None:
-        return "_e[0]"
-    if r is None or c is None:
-        return "_e"
-    return f'_e.reshape(({_size_code((r, None))}, {_size_code((c, None))}), order="F")'

@@ -201,6 +201,8 @@ class NumpyEvaluator(ast.NodeVisitor):
     def visit_Name(self, node):
         if node.id in self.arrays:
             return self.arrays[node.id]
+        if node.id in self.sizes:  # a dim used as a number (`c**n`) is its size
+            return float(self.sizes[node.id])
         raise NameError(f"unknown name {node.id!r}")
 
     # -- operators --------------------------------------------------------------------------

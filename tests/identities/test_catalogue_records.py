@@ -27,7 +27,7 @@ REQUIRED = (
     "source",
     "kind",
 )
-OPTIONAL = ("wrt", "aliases", "apply")
+OPTIONAL = ("wrt", "aliases", "apply", "notes")
 FUNCTIONS = {
     "trace", "det", "logdet", "inv", "solve", "kron", "vec", "diag", "diagm", "sum", "norm",
     "exp", "log", "sqrt", "sin", "cos", "tanh", "sigmoid", "softplus", "logsumexp", "softmax",
@@ -54,7 +54,8 @@ def test_record_has_every_field(record):
     assert not unknown, f"{record['id']}: unknown fields {sorted(unknown)}"
     for key in ("id", "title", "lhs", "rhs", "latex_lhs", "latex_rhs", "source", "kind"):
         assert isinstance(record[key], str) and record[key].strip(), f"{record['id']}: empty {key}"
-    assert isinstance(record["conditions"], str)
+    assert isinstance(record["conditions"], tuple), f"{record['id']}: conditions are a tuple"
+    assert isinstance(record.get("notes", ""), str)
 
 
 @pytest.mark.parametrize("record", RECORDS, ids=IDS)
@@ -125,10 +126,13 @@ def test_sides_use_only_declared_names_and_known_functions(record):
                     f"{record['id']}: unknown function in {record[side]!r}"
                 )
                 if node.func.id in ("eye", "ones", "zeros", "commutation"):
-                    for a in node.args:
-                        assert isinstance(a, ast.Constant) or (
-                            isinstance(a, ast.Name) and a.id in dims
-                        ), f"{record['id']}: dims of {node.func.id} must be declared dims"
+                    for a in node.args:  # a dim, an integer, or a product of them (m * n)
+                        for leaf in ast.walk(a):
+                            assert (
+                                isinstance(leaf, (ast.Constant, ast.Mult, ast.Load))
+                                or (isinstance(leaf, ast.BinOp) and isinstance(leaf.op, ast.Mult))
+                                or (isinstance(leaf, ast.Name) and leaf.id in dims)
+                            ), f"{record['id']}: dims of {node.func.id} must be declared dims"
                     continue
             if isinstance(node, ast.Name) and isinstance(getattr(node, "ctx", None), ast.Load):
                 if node.id in FUNCTIONS or node.id in dims:
@@ -147,7 +151,7 @@ def test_identity_face():
     ident = identities.get("vec-triple-product")
     for attr in ("id", "title", "tags", "declarations", "lhs", "rhs", "latex", "source", "kind"):
         assert getattr(ident, attr)
-    assert ident.conditions == ""
+    assert ident.conditions == () and ident.conditions_text == ""
     assert ident.latex == rf"{ident.latex_lhs} = {ident.latex_rhs}"
     assert ident.block("rhs").splitlines()[-1] == "f = kron(B.T, A) @ vec(X)"
     assert ident.to_dict()["latex"] == ident.latex
@@ -166,3 +170,98 @@ def test_every_family_is_covered():
 def test_get_unknown_id_names_close_ids():
     with pytest.raises(KeyError, match="woodbury-identity"):
         identities.get("woodbury-identty")
+
+
+# ---------------------------------------------------------------------------------------------
+# symbolic sizes and structured conditions
+# ---------------------------------------------------------------------------------------------
+
+_SIZE_CALLS = ("eye", "ones", "zeros", "commutation")
+# literal sizes in LaTeX: I_4, I_{6}, K_{2,3}, 0_{3}, 1_3, and "3 x 3" / "3 \times 3" in words
+_LATEX_SIZE = re.compile(r"\b[IK01]_\{?\d|\d\s*(x|\\times|×)\s*\d")
+
+
+def literal_sizes(record) -> list[str]:
+    """Every place where the record writes a size as a number: declarations, size arguments of
+    eye/ones/zeros/commutation, LaTeX subscripts, the title. 1 is a unit axis, not a size."""
+    found = []
+    for line in record["declarations"]:
+        for d in parse_declaration(line)[1]:
+            if isinstance(d, int) and d != 1:
+                found.append(line)
+    for side in ("lhs", "rhs"):
+        for node in ast.walk(ast.parse(record[side], mode="eval")):
+            if isinstance(node, ast.Call) and getattr(node.func, "id", "") in _SIZE_CALLS:
+                for a in node.args:
+                    for leaf in ast.walk(a):
+                        if isinstance(leaf, ast.Constant) and leaf.value != 1:
+                            found.append(ast.unparse(node))
+    for key in ("latex_lhs", "latex_rhs", "title"):
+        if _LATEX_SIZE.search(record[key]):
+            found.append(f"{key}: {record[key]}")
+    return found
+
+
+@pytest.mark.parametrize("record", RECORDS, ids=IDS)
+def test_record_is_stated_at_symbolic_sizes(record):
+    assert not literal_sizes(record), f"{record['id']}: fixed sizes {literal_sizes(record)}"
+
+
+def test_the_size_check_can_fail():
+    fixed = {
+        "declarations": ("A: (3, 3)",),
+        "lhs": "trace(eye(4))",
+        "rhs": "kron(eye(2), commutation(2, 3))",
+        "latex_lhs": r"\operatorname{tr}(I_4)",
+        "latex_rhs": r"K_{2,3}",
+        "title": "for a 3 x 3 matrix",
+    }
+    found = literal_sizes(fixed)
+    assert len(set(found)) == 7, found
+    symbolic = {**fixed, "declarations": ("A: (n, 1)",), "lhs": "trace(eye(n))", "rhs": "n"}
+    symbolic.update(latex_lhs=r"\operatorname{tr}(I_n)", latex_rhs="n", title="the identity")
+    assert literal_sizes(symbolic) == []
+
+
+@pytest.mark.parametrize("ident", [i for i in identities.all() if i.conditions], ids=lambda i: i.id)
+def test_conditions_are_structured_and_read_by_the_formula_reader(ident):
+    from gradwright.identities.conditions import PROPERTIES
+
+    declared = {parse_declaration(line)[0] for line in ident.declarations}
+    for cond in ident.condition_items:
+        assert cond.property in PROPERTIES
+        for subject in cond.subjects:
+            ident.subject_expr(subject)  # raises FormulaError on anything but a formula
+        if cond.property == "constant in":
+            assert cond.variable in declared
+    for shown in (ident.conditions_text, ident.conditions_latex):
+        assert shown and "in general" not in shown
+        # no source spellings of other notations leak: (x) for kron, ^T, K_{m,n} as text
+        assert " (x) " not in shown and "^T" not in shown and "{-1}" not in ident.conditions_text
+
+
+def test_conditions_read_as_words_text_and_math():
+    woodbury = identities.get("woodbury-identity")
+    assert woodbury.conditions_text == "A, C and A + U @ C @ V invertible"
+    assert woodbury.conditions_latex.startswith("$A$, $C$ and $A + U")
+    assert identities.get("logdet-scalar-multiple").conditions_text == "c > 0"
+    assert identities.get("logdet-scalar-multiple").conditions_latex == "$c > 0$"
+    assert identities.get("differential-of-entrywise-log").conditions_text == (
+        "every entry of X positive"
+    )
+    assert identities.get("identification-scalar-variable").conditions_text == (
+        "g does not depend on t"
+    )
+    sm = identities.get("sherman-morrison-formula")
+    assert sm.conditions_latex == r"$A$ invertible; $1 + v^{\top}\,A^{-1}\,u \neq 0$"
+    assert identities.get("logdet-rank-one-update").conditions_text == (
+        "S symmetric positive definite"
+    )
+
+
+@pytest.mark.parametrize("line", ["A and B invertible", "A: invertable", "A +: invertible"])
+def test_a_condition_in_free_words_is_refused(line):
+    from gradwright.identities.conditions import parse_condition
+
+    with pytest.raises(ValueError):
+        parse_condition(line)

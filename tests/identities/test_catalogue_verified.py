@@ -24,7 +24,14 @@ from gradwright.sampling import sample_symbol
 IDENTITIES = all_identities()
 IDS = [i.id for i in IDENTITIES]
 SEEDS = (0, 1, 2)
-SIZE_PLANS = ((2, 3, 4, 2, 3, 4), (3, 4, 2, 4, 2, 3), (4, 2, 3, 3, 4, 2))
+# every record is stated at symbolic sizes (tr(I_n) = n): each dim takes four different sizes,
+# one of them past 4, so a size written into a side (a 3 where n belongs) cannot pass
+SIZE_PLANS = (
+    (2, 3, 4, 2, 3, 4),
+    (3, 4, 2, 4, 2, 3),
+    (4, 2, 3, 3, 4, 2),
+    (5, 6, 5, 6, 5, 6),
+)
 
 
 def parse(ident, text):
@@ -107,3 +114,35 @@ def test_core_differential_agrees_with_the_record(ident):
         ours = evaluate(derivation.differential(), arrays, differentials=dirs, dims=sizes)
         record = evaluate(right.expr, arrays, differentials=dirs, dims=sizes)
         assert close(ours, record, rtol=1e-8, atol=1e-9), f"{ident.id} (seed {seed})"
+
+
+@pytest.mark.parametrize("ident", IDENTITIES, ids=IDS)
+def test_every_dim_is_exercised_at_several_sizes(ident):
+    block = parse(ident, ident.lhs if ident.kind != "differential" else "0")
+    seen: dict = {}
+    for _seed, sizes, _rng, _arrays in cases(ident, block):
+        for dim, size in sizes.items():
+            seen.setdefault(dim, set()).add(size)
+    assert all(len(v) >= 4 for v in seen.values()), f"{ident.id}: {seen}"
+
+
+def test_a_size_written_as_a_number_is_caught():
+    # trace(eye(n)) = 3 holds at n = 3 only: the size plans must expose it
+    from gradwright.identities.record import Identity
+
+    fixed = Identity.from_record(
+        {
+            **{k: v for k, v in all_identities()[0].to_dict().items() if k != "latex"},
+            "declarations": ("A: (n, n)",),
+            "lhs": "trace(eye(n))",
+            "rhs": "3",
+            "conditions": (),
+        }
+    )
+    block = parse(fixed, fixed.lhs)
+    wrong = [
+        sizes
+        for _seed, sizes, _rng, arrays in cases(fixed, block)
+        if evaluate(block.expr, arrays, dims=sizes) != 3
+    ]
+    assert wrong

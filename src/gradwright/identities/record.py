@@ -1,12 +1,16 @@
 """The `Identity` record: one catalogue entry as an immutable object with its rendered face.
 
-The catalogue itself is plain data in `catalogue.py`; this module only wraps each dict.
+The catalogue itself is plain data in `catalogue_*.py` (joined in `catalogue.py`); this module
+only wraps each dict.
 """
 
 from __future__ import annotations
 
 import re
 from dataclasses import dataclass, field
+from functools import cached_property
+
+from .conditions import Condition, parse_condition
 
 __all__ = [
     "APPLY_DIRECTIONS",
@@ -77,7 +81,7 @@ class Identity:
     declarations: tuple[str, ...]
     lhs: str
     rhs: str
-    conditions: str
+    conditions: tuple[str, ...]
     latex_lhs: str
     latex_rhs: str
     source: str
@@ -85,6 +89,7 @@ class Identity:
     wrt: str | None = None
     aliases: tuple[str, ...] = ()
     apply: str = "both"
+    notes: str = ""
     extra: dict = field(default_factory=dict, compare=False, hash=False, repr=False)
 
     @classmethod
@@ -104,6 +109,7 @@ class Identity:
             "wrt",
             "aliases",
             "apply",
+            "notes",
         }
         return cls(
             id=record["id"],
@@ -112,7 +118,7 @@ class Identity:
             declarations=tuple(record["declarations"]),
             lhs=record["lhs"],
             rhs=record["rhs"],
-            conditions=record.get("conditions", ""),
+            conditions=tuple(record.get("conditions", ())),
             latex_lhs=record["latex_lhs"],
             latex_rhs=record["latex_rhs"],
             source=record["source"],
@@ -120,6 +126,7 @@ class Identity:
             wrt=record.get("wrt"),
             aliases=tuple(record.get("aliases", ())),
             apply=record.get("apply", "both"),
+            notes=record.get("notes", ""),
             extra={k: v for k, v in record.items() if k not in known},
         )
 
@@ -135,6 +142,43 @@ class Identity:
         if self.kind == "derivative":
             return f"gradient of {self.lhs} in {self.wrt} == {self.rhs}"
         return f"{self.lhs} == {self.rhs}"
+
+    @cached_property
+    def condition_items(self) -> tuple[Condition, ...]:
+        """The conditions read into `Condition`s (subjects, property)."""
+        return tuple(parse_condition(line) for line in self.conditions)
+
+    def subject_expr(self, subject: str):
+        """A condition subject read with the record's declarations (an `Expr`)."""
+        from ..language import parse_block
+
+        return parse_block("\n".join([*self.declarations, f"f = {subject}"])).expr
+
+    def _phrases(self, latex: bool) -> list[str]:
+        from ..printing import latex as to_latex
+
+        out = []
+        for cond in self.condition_items:
+            exprs = [self.subject_expr(s) for s in cond.subjects]
+            names = [to_latex(e) for e in exprs] if latex else list(cond.subjects)
+            scalar = all(e.shape == (None, None) for e in exprs)
+            out.append(cond.phrase(names, scalar, latex=latex))
+        return out
+
+    @cached_property
+    def conditions_text(self) -> str:
+        """The conditions in words and formula text: `A, C and A + U @ C @ V invertible`.
+
+        >>> from gradwright.identities import get
+        >>> get("sherman-morrison-formula").conditions_text
+        'A invertible; 1 + v @ inv(A) @ u ≠ 0'
+        """
+        return "; ".join(self._phrases(latex=False))
+
+    @cached_property
+    def conditions_latex(self) -> str:
+        """The conditions in words with inline math (`$...$`), for the notebook."""
+        return "; ".join(self._phrases(latex=True))
 
     @property
     def families(self) -> tuple[str, ...]:
@@ -162,7 +206,8 @@ class Identity:
             "declarations": list(self.declarations),
             "lhs": self.lhs,
             "rhs": self.rhs,
-            "conditions": self.conditions,
+            "conditions": list(self.conditions),
+            "conditions_text": self.conditions_text,
             "latex_lhs": self.latex_lhs,
             "latex_rhs": self.latex_rhs,
             "latex": self.latex,
@@ -173,14 +218,25 @@ class Identity:
             out["wrt"] = self.wrt
         if self.aliases:
             out["aliases"] = list(self.aliases)
+        if self.notes:
+            out["notes"] = self.notes
         return out
 
     def _repr_markdown_(self) -> str:
-        cond = f"  \n*when:* {self.conditions}" if self.conditions else ""
+        cond = f"  \n*when:* {self.conditions_latex}" if self.conditions else ""
+        if self.notes:
+            cond += f"  \n*note:* {self.notes}"
         return (
             f"**{self.title}** (`{self.id}`)  \n$${self.latex}$$  \n"
             f"`{self.lhs}` ⟶ `{self.rhs}`{cond}  \n*source:* {self.source}"
         )
 
     def __str__(self) -> str:
-        return f"{self.id}: {self.text}"
+        """One line for a search listing; the conditions in words and formula text.
+
+        >>> from gradwright.identities import get
+        >>> print(get("inverse-scalar-multiple"))
+        inverse-scalar-multiple: inv(c * A) == inv(A) / c  (when c ≠ 0)
+        """
+        when = f"  (when {self.conditions_text})" if self.conditions else ""
+        return f"{self.id}: {self.text}{when}"

@@ -58,7 +58,10 @@ def identities_used(derivation) -> list[tuple[object, str]]:
     for rule in rules_used(derivation):
         if rule in _PLAIN_RULES or rule.startswith(("symmetric part", "read off")):
             continue
-        ids = RULE_IDENTITIES.get(rule)
+        # the records that carry the rule's label as an alias and those of the table, else the
+        # words of the label
+        ids = tuple(i.id for i in known.values() if rule in getattr(i, "aliases", ()))
+        ids = tuple(dict.fromkeys(ids + RULE_IDENTITIES.get(rule, ()))) or None
         if ids is None:  # e.g. "chain rule for tanh": the differential of that function
             words = rule.replace("chain rule for", "differential").replace(" rule", "")
             hits = catalogue.search_with_scores(words, limit=1)
@@ -68,6 +71,14 @@ def identities_used(derivation) -> list[tuple[object, str]]:
                 seen.add(identity_id)
                 out.append((known[identity_id], rule))
     return out
+
+
+def _blob(identity) -> str:
+    """The words an "applies to" result is filtered by: title, id, tags and aliases (the rule
+    labels a derivation shows are aliases of their identities)."""
+    words = [identity.title, identity.id, *(identity.tags or ())]
+    words += list(getattr(identity, "aliases", ()) or ())
+    return " ".join(words).lower()
 
 
 def _catalogue():
@@ -122,12 +133,13 @@ def identity_html(identity, note: str = "") -> str:
         f"{' &middot; ' + html.escape(tags) if tags else ''}</span>",
         f"<div>{html.escape(_math(identity.latex))}</div>",
     ]
+    # catalogue records render their structured conditions as words and inline math
+    when = getattr(identity, "conditions_latex", None)
     if conditions:
-        parts.append(
-            "<div style='font-size:90%'>when: "
-            + html.escape(readable_condition("; ".join(map(str, conditions))))
-            + "</div>"
-        )
+        when = when or readable_condition("; ".join(map(str, conditions)))
+        parts.append(f"<div style='font-size:90%'>when: {html.escape(when)}</div>")
+    if getattr(identity, "notes", ""):
+        parts.append(f"<div style='font-size:90%'>note: {html.escape(identity.notes)}</div>")
     if getattr(identity, "source", None):
         parts.append(
             "<div style='font-size:85%;color:#555'>source: "
@@ -246,7 +258,7 @@ class IdentityPanel:
             for identity, rule in identities_used(self.derivation):
                 if tags and not set(tags) & set(identity.tags or ()):
                     continue
-                blob = f"{identity.title} {identity.id} {' '.join(identity.tags or ())}".lower()
+                blob = f"{_blob(identity)} {rule.lower()}"  # the label it is cited under
                 if words and not all(word in blob for word in words):
                     continue
                 listed.add(identity.id)
@@ -257,7 +269,7 @@ class IdentityPanel:
                     continue
                 if tags and not set(tags) & set(identity.tags or ()):
                     continue
-                blob = f"{identity.title} {identity.id} {' '.join(identity.tags or ())}".lower()
+                blob = _blob(identity)
                 if words and not all(word in blob for word in words):
                     continue
                 direction = getattr(match, "direction", "")

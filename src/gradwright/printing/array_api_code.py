@@ -10,6 +10,7 @@ place, which JAX cannot: they stay NumPy-only.
 from __future__ import annotations
 
 import ast
+import sys
 from pathlib import Path
 
 #: libraries a module can be written for; "array_api" dispatches on the arguments
@@ -18,12 +19,45 @@ BACKENDS = ("numpy", "array_api", "torch", "jax", "cupy", "dask")
 #: functions of the NumPy module that have no array-API counterpart (they fill arrays in place)
 NUMPY_ONLY_PREFIXES = ("jacobian_", "hessian_")
 
-_RUNTIME = Path(__file__).with_name("xp_runtime.py")
+#: the runtime's pieces, one concern each, joined in this order into one self-contained text;
+#: each piece imports only from the pieces before it (those imports vanish in the join)
+RUNTIME_PIECES = (
+    "xp_runtime.py",
+    "xp_runtime_linalg.py",
+    "xp_runtime_spectral.py",
+    "xp_runtime_namespace.py",
+    "xp_runtime_check.py",
+)
 
 
 def runtime_source() -> str:
-    """The text of the runtime copied into every array-API module."""
-    return _RUNTIME.read_text(encoding="utf-8")
+    """The text of the runtime copied into every array-API module: the first piece's docstring,
+    the imports of all pieces (from outside gradwright) once, then the pieces' code in order.
+
+    >>> "def _gw_check(" in runtime_source() and "from .xp_runtime" not in runtime_source()
+    True
+    """
+    doc, imports, bodies = "", [], []
+    for name in RUNTIME_PIECES:
+        text = Path(__file__).with_name(name).read_text(encoding="utf-8")
+        lines = text.split("\n")
+        head_end = 0
+        for stmt in ast.parse(text).body:
+            if isinstance(stmt, ast.Expr) and isinstance(stmt.value, ast.Constant):
+                doc = doc or "\n".join(lines[: stmt.end_lineno])  # the pieces' docstrings
+            elif isinstance(stmt, ast.Import) or (
+                isinstance(stmt, ast.ImportFrom) and stmt.level == 0
+            ):
+                line = "\n".join(lines[stmt.lineno - 1 : stmt.end_lineno])
+                imports += [] if line in imports else [line]
+            elif not isinstance(stmt, ast.ImportFrom):  # `from .xp_runtime ...`: dropped
+                break
+            head_end = stmt.end_lineno
+        bodies.append("\n".join(lines[head_end:]).strip("\n"))
+    stdlib = [line for line in imports if line.split()[1].split(".")[0] in sys.stdlib_module_names]
+    others = [line for line in imports if line not in stdlib]
+    head = "\n\n".join(["\n".join(group) for group in (stdlib, others) if group])
+    return "\n\n\n".join([doc + "\n\n" + head, *bodies]) + "\n"
 
 
 class _ToArrayApi(ast.NodeTransformer):

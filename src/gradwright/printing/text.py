@@ -149,10 +149,15 @@ class TextPrinter(TextAxisMixin, Printer):
 
     def _print_Trace(self, e):
         a = e.args[0]
-        if type(a) is E.Identity:  # tr(I_k) is k, as the LaTeX shows it; a dim reads as its size
-            size = self.dim(a.args[0])
-            return size if size.isidentifier() or size.isdigit() else f"({size})"
+        if type(a) in (E.Identity, E.Ones):  # tr(I_n) is n, as the LaTeX shows it
+            return self.size_product(a.shape[:1])
         return self.fn("trace", self._print(a))
+
+    def size_product(self, dims) -> str:
+        """Dims used as a number: `n`, or `(m * n)` when it is a product (kept one factor)."""
+        parts = [self.dim(d) for d in dims if d is not None]
+        joined = " * ".join(parts)
+        return f"({joined})" if len(parts) > 1 or "*" in joined else joined
 
     def _print_Det(self, e):
         return self.fn("det", self._print(e.args[0]))
@@ -167,7 +172,20 @@ class TextPrinter(TextAxisMixin, Printer):
         return self.fn("solve", self._print(e.args[0]), self._print(e.args[1]))
 
     def _print_Kron(self, e):
-        return self.fn("kron", self._print(e.args[0]), self._print(e.args[1]))
+        a, b = e.args
+        if E.is_vector_shape(a.shape) and E.is_vector_shape(b.shape):
+            if (a.shape[1] is None) == (b.shape[1] is None):
+                # two columns, or two rows (xᵀ ⊗ yᵀ = (x ⊗ y)ᵀ): NumPy's kron of 1-D arrays
+                return self.fn("kron", self._print(a), self._print(b))
+        # a row beside a matrix (xᵀ ⊗ I) or a column beside one (I ⊗ x) is spelled as the 2-D
+        # array it is, so that the text keeps the transpose the LaTeX shows
+        return self.fn("kron", self.kron_operand(a), self.kron_operand(b))
+
+    def kron_operand(self, f: E.Expr) -> str:
+        if not E.is_vector_shape(f.shape):
+            return self._print(f)
+        axis = "[:, None]" if f.shape[1] is None else "[None, :]"
+        return self.paren(f, P.ATOM) + axis
 
     def _print_Vec(self, e):
         return self.fn("vec", self._print(e.args[0]))
@@ -186,7 +204,10 @@ class TextPrinter(TextAxisMixin, Printer):
         return f"{self.names.get('tril', 'tril')}({self._print(e.args[0])})"
 
     def _print_Sum(self, e):
-        return self.fn("sum", self._print(e.args[0]))
+        a = e.args[0]
+        if type(a) is E.Ones:  # the number of entries, as the LaTeX shows it
+            return self.size_product(a.shape)
+        return self.fn("sum", self._print(a))
 
     def _print_Norm(self, e):
         return self.fn("norm", self._print(e.args[0]))
