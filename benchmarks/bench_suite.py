@@ -79,13 +79,17 @@ def check(got, want, what):
         np.testing.assert_allclose(np.asarray(g), np.asarray(w), rtol=1e-6, atol=1e-8, err_msg=what)
 
 
-def others(case: str, ref, args: dict, wrt: tuple, hand: float):
-    """Jitted JAX value-and-gradient and torch eager autograd of the same function."""
+def others(case: str, ref, args: dict, wrt: tuple, hand: float, want: tuple | None = None):
+    """Jitted JAX value-and-gradient and torch eager autograd of the same function; with
+    `want` (value, *gradients in the order of `wrt`) both are checked against it first."""
     if jax is not None:
         ja = {k: jnp.asarray(v) for k, v in args.items()}
         f = jax.jit(jax.value_and_grad(lambda vs, cs: ref(jnp, **cs, **vs)))
         vs = {k: ja[k] for k in wrt}
         cs = {k: v for k, v in ja.items() if k not in wrt}
+        if want is not None:
+            value, grads = f(vs, cs)
+            check((value, *(grads[k] for k in wrt)), want, f"{case} (JAX)")
         record(case, "value+gradient, jitted JAX", lambda: jax.block_until_ready(f(vs, cs)), hand)
     if torch is not None:
         ta = {k: torch.tensor(v, dtype=torch.float64) for k, v in args.items()}
@@ -93,8 +97,10 @@ def others(case: str, ref, args: dict, wrt: tuple, hand: float):
         def run():
             vs = {k: ta[k].detach().requires_grad_(True) for k in wrt}
             out = ref(torch, **{**ta, **vs})
-            return torch.autograd.grad(out, [vs[k] for k in wrt])
+            return (out, *torch.autograd.grad(out, [vs[k] for k in wrt]))
 
+        if want is not None:
+            check(tuple(t.detach().numpy() for t in run()), want, f"{case} (torch)")
         return record(case, "value+gradient, torch eager", run, hand)
     return None
 
@@ -179,43 +185,63 @@ def network(n, dd, hh, k):
     check((value, *grads), (hv, *hg), case)
     h = record(case, "value+gradient, hand-written NumPy", lambda: hand(**a), None)
     ours = record(case, "value+gradient, gradwright", lambda: vg(**a), h)
-    t_torch = others(case, ref, a, ("W1", "b1", "W2", "b2"), h)
+    t_torch = others(case, ref, a, ("W1", "b1", "W2", "b2"), h, want=(hv, *hg))
     if t_torch:
         TARGETS.append(
             (f"{case}: value+gradient / torch <= 0.8", ours / t_torch, ours <= 0.8 * t_torch)
         )
 
 
-ATTENTION = "Q: (n, e)\nK: (m, e)\nV: (m, e)\nc: ()\nA = exp(c * Q @ K.T)\nf = sum((A @ V)**2)"
+ATTENTION = (
+    "Q: (n, e)\nK: (m, e)\nV: (m, e)\nT: (n, e)\nc: ()\n"
+    "A = softmax(c * Q @ K.T, axis=1)\nf = sum((A @ V - T)**2)"
+)
+
+
+def _softmax_rows(xp, z):
+    if xp is np:
+        z = np.exp(z - z.max(axis=1, keepdims=True))
+        return z / z.sum(axis=1, keepdims=True)
+    if torch is not None and xp is torch:
+        return torch.softmax(z, dim=1)
+    return jax.nn.softmax(z, axis=1)
 
 
 def attention(n, m, e):
-    case = f"attention head (unnormalized scores) n={n} m={m} e={e}"
+    case = f"attention head (softmax over each row) n={n} m={m} e={e}"
     d = derive(ATTENTION, wrt=["Q", "K", "V"])
     rng = np.random.default_rng(2)
     a = {
         "Q": rng.standard_normal((n, e)),
         "K": rng.standard_normal((m, e)),
         "V": rng.standard_normal((m, e)),
-        "c": 0.5 / e,
+        "T": rng.standard_normal((n, e)),
+        "c": 1 / np.sqrt(e),
     }
     vg = d.value_and_gradient_function()
 
-    def hand(Q, K, V, c):
-        A = np.exp(c * (Q @ K.T))
-        Z = A @ V
-        G = A * (Z @ V.T)
-        return np.vdot(Z, Z), (2 * c * (G @ K), 2 * c * (G.T @ Q), 2 * (A.T @ Z))
+    def hand(Q, K, V, T, c):
+        S = Q @ K.T
+        S *= c
+        S -= S.max(axis=1, keepdims=True)
+        A = np.exp(S, out=S)
+        A /= A.sum(axis=1, keepdims=True)
+        R = A @ V
+        R -= T
+        G = R @ V.T  # half the cotangent of A
+        G -= np.einsum("ij,ij->i", A, G)[:, None]
+        G *= A  # the softmax backward A * (G - rowsum(A * G)), halved
+        return np.vdot(R, R), (2 * c * (G @ K), 2 * c * (G.T @ Q), 2 * (A.T @ R))
 
-    def ref(xp, Q, K, V, c):
-        return xp.sum((xp.exp(c * Q @ K.T) @ V) ** 2)
+    def ref(xp, Q, K, V, T, c):
+        return xp.sum((_softmax_rows(xp, c * Q @ K.T) @ V - T) ** 2)
 
     value, grads = vg(**a)
     hv, hg = hand(**a)
     check((value, *grads), (hv, *hg), case)
     h = record(case, "value+gradient, hand-written NumPy", lambda: hand(**a), None)
     ours = record(case, "value+gradient, gradwright", lambda: vg(**a), h)
-    t_torch = others(case, ref, a, ("Q", "K", "V"), h)
+    t_torch = others(case, ref, a, ("Q", "K", "V"), h, want=(hv, *hg))
     if t_torch:
         TARGETS.append(
             (f"{case}: value+gradient / torch <= 0.8", ours / t_torch, ours <= 0.8 * t_torch)
@@ -386,19 +412,28 @@ def fresh_process():
 def main():
     p = argparse.ArgumentParser()
     p.add_argument("--quick", action="store_true", help="small sizes (under a minute)")
+    p.add_argument("--only", default="", help="comma-separated problems, e.g. attention,network")
     args = p.parse_args()
     q = args.quick
-    for n in (16, 64, 256) if q else (16, 64, 200, 1000):
-        least_squares(n)
-    matrix_least_squares(300, 300, 300) if not q else matrix_least_squares(100, 100, 100)
-    matrix_least_squares(2000, 50, 3) if not q else matrix_least_squares(500, 20, 3)
-    factorization(300 if q else 1000, 10)
-    network(*((256, 98, 32, 10) if q else (2048, 784, 256, 10)))
-    attention(*((128, 64, 16) if q else (512, 256, 64)))
-    kalman(*((50, 20) if q else (200, 100)))
-    gaussian_process(100 if q else 500)
-    reml(*((100, 3, 10) if q else (500, 5, 25)))
-    fresh_process()
+    problems = {
+        "least_squares": lambda: [
+            least_squares(n) for n in ((16, 64, 256) if q else (16, 64, 200, 1000))
+        ],
+        "matrix_least_squares": lambda: (
+            matrix_least_squares(*((100, 100, 100) if q else (300, 300, 300))),
+            matrix_least_squares(*((500, 20, 3) if q else (2000, 50, 3))),
+        ),
+        "factorization": lambda: factorization(300 if q else 1000, 10),
+        "network": lambda: network(*((256, 98, 32, 10) if q else (2048, 784, 256, 10))),
+        "attention": lambda: attention(*((128, 64, 16) if q else (512, 256, 64))),
+        "kalman": lambda: kalman(*((50, 20) if q else (200, 100))),
+        "gaussian_process": lambda: gaussian_process(100 if q else 500),
+        "reml": lambda: reml(*((100, 3, 10) if q else (500, 5, 25))),
+        "fresh_process": fresh_process,
+    }
+    chosen = [w for w in args.only.split(",") if w] or list(problems)
+    for name in chosen:
+        problems[name]()
     print(f"machine: {platform.machine()}, {os.cpu_count()} cores, {platform.platform()}")
     print(f"python {platform.python_version()}, numpy {np.__version__}", end="")
     print(f", jax {jax.__version__}" if jax else "", end="")

@@ -12,6 +12,7 @@ from dataclasses import dataclass
 
 from . import expr as E
 from .calculus import adjoint, differential, expand_once, has_pending, kronecker_form
+from .calculus.symmetric_gradient import symmetric_as_is
 from .derivation_functions import DerivationFunctions
 from .errors import FormulaError, NotSupportedError, ShapeError, frame_named
 from .function_specs import MAX_HESSIAN_GRADIENT, build_specs  # noqa: F401
@@ -21,7 +22,7 @@ from .matrix_functions import NODES as _MATRIX_NODES
 from .printing import latex, symbol_latex, text
 from .printing import numpy_code as C
 from .printing.latex import differential_latex
-from .printing.structure import known_spd
+from .printing.structure import cholesky_ok
 from .sampling import default_sizes, needs_positive, sample_inputs
 from .simplify import simplify
 
@@ -396,7 +397,7 @@ class Derivation(DerivationFunctions):
             nonanalytic = ("softplus", "abs", "sign")
             if t in (E.LogDet, E.Norm, E.Abs) or (t is E.Func and node.name in nonanalytic):
                 return False
-            if t in (E.Solve, E.Inverse) and known_spd(node.args[0]):  # Cholesky: not analytic
+            if t in (E.Solve, E.Inverse) and cholesky_ok(node.args[0]):  # Cholesky: not analytic
                 return False
             if t in _MATRIX_NODES:  # eigh, cholesky and SciPy's solvers: no complex step
                 return False
@@ -590,6 +591,8 @@ def _project(g: E.Expr, sym: E.Symbol) -> E.Expr:
     if "lower" in sym.structure:
         return simplify(E.tril(g))
     if sym.structure & E.SYMMETRIC_WORDS:
+        if symmetric_as_is(g):  # (G + Gᵀ)/2 = G: not a second product for nothing
+            return g
         return simplify(E.sym_part(g))
     return g
 

@@ -98,8 +98,8 @@ def _attention(Q, K, V, c):
 @pytest.mark.parametrize(
     ("block", "wrt", "ref", "sizes", "once"),
     [
-        (NETWORK, ("W1", "W2", "b1", "b2"), _network, {"n": 7, "d": 5, "h": 4, "k": 3}, "np.tanh("),
-        (ATTENTION, ("Q", "K", "V"), _attention, {"n": 6, "m": 5, "e": 3}, "np.exp("),
+        (NETWORK, ("W1", "W2", "b1", "b2"), _network, {"n": 7, "d": 5, "h": 4, "k": 3}, "np.tanh"),
+        (ATTENTION, ("Q", "K", "V"), _attention, {"n": 6, "m": 5, "e": 3}, "np.exp"),
     ],
     ids=["network", "attention"],
 )
@@ -116,3 +116,48 @@ def test_shared_and_transposed_subexpressions_computed_once(block, wrt, ref, siz
     np.testing.assert_allclose(value, float(ref(**ja)), rtol=1e-10)
     for v, got in zip(wrt, grads):
         np.testing.assert_allclose(got, np.asarray(want[v]), rtol=1e-8, atol=1e-10)
+
+
+SOFTMAX_ATTENTION = (
+    "Q: (n, e)\nK: (m, e)\nV: (m, e)\nT: (n, e)\nc: ()\n"
+    "A = softmax(c * Q @ K.T, axis=1)\nf = sum((A @ V - T)**2)"
+)
+
+
+def _softmax_attention(Q, K, V, T, c):
+    return jnp.sum((jax.nn.softmax(c * Q @ K.T, axis=1) @ V - T) ** 2)
+
+
+def test_softmax_attention_is_written_as_by_hand():
+    """One softmax, six products, the backward A * (G - rowsum(A * G)) once: no ones matrix,
+    no repeated products, no scalar multiple of an n x m array of its own; values against
+    JAX (jax.grad of jax.nn.softmax)."""
+    d = derive(SOFTMAX_ATTENTION, wrt=["Q", "K", "V"])
+    body = _body(d.source(), "value_and_gradient")
+    code = body[body.index("    A = ") :]  # after the argument checks
+    assert code.count("_gw_softmax_axis") == 1
+    assert code.count(" @ ") == 6, code  # QKᵀ, AV, GVᵀ, SK, SᵀQ, AᵀR: no recomputation
+    assert "np.ones(" not in code and "np.outer(" not in code
+    assert code.count("ij,ij->i") == 1  # the row sums of A * G, by einsum, once
+    assert "2 * c * A" not in code  # the numbers go into an array the code owns
+    # the backward consumes G (the product with Vᵀ) in place: subtract, multiply by A
+    assert "_gw_isub(_t2, " in code and "_gw_imul(_gw_imul(_gw_isub(" in code
+    rng = np.random.default_rng(11)
+    a = {"Q": rng.standard_normal((7, 3)), "K": rng.standard_normal((5, 3))}
+    a.update(V=rng.standard_normal((5, 3)), T=rng.standard_normal((7, 3)), c=0.8)
+    value, grads = d.value_and_gradient_function()(**a)
+    ja = {k: jnp.asarray(v) for k, v in a.items()}
+    want = jax.grad(lambda vs: _softmax_attention(**{**ja, **vs}))({k: ja[k] for k in "QKV"})
+    np.testing.assert_allclose(value, float(_softmax_attention(**ja)), rtol=1e-12)
+    for k, g in zip("QKV", grads):
+        np.testing.assert_allclose(g, np.asarray(want[k]), rtol=1e-10, atol=1e-12)
+
+
+def test_network_allocates_only_what_it_needs():
+    """The hidden layer's bias added and tanh taken in the array of X @ W1; 1 - H² and its
+    product with the back-propagated residual in one array; one tanh."""
+    d = derive(NETWORK, wrt=["W1", "b1", "W2", "b2"])
+    body = _body(d.source(), "value_and_gradient")
+    assert body.count("np.tanh") == 1
+    assert "_gw_apply(np.tanh, _gw_iadd(X @ W1, " in body
+    assert "_gw_imul(_gw_rsub(1, H ** 2), " in body

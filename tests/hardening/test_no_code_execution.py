@@ -138,7 +138,9 @@ def test_generated_source_uses_only_known_identifiers(block, wrt):
         h: {s.name for s in ast.parse(text).body if isinstance(s, (ast.FunctionDef, ast.ClassDef))}
         for h, text in HELPERS.items()
     }
-    used = {h for h in HELPERS if defined[h] & helpers}
+    assigned = {t.id for st in body if isinstance(st, ast.Assign) for t in st.targets
+                if isinstance(t, ast.Name)}  # fmt: skip
+    used = {h for h in HELPERS if defined[h] & helpers or h in assigned}  # a helper may be a value
     assert helpers <= set().union(*(defined[h] for h in used))
     # every statement of the helpers' own text, verbatim (a helper may hold a class too)
     helper_text = {ast.dump(s) for h in used for s in ast.parse(HELPERS[h]).body}

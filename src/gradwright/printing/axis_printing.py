@@ -88,13 +88,26 @@ def _gw_logsumexp_axis(a, axis, keepdims):
 """,
     "_gw_softmax_axis": """
 def _gw_softmax_axis(a, axis):
-    z = np.exp(a - np.max(np.real(a), axis=axis, keepdims=True))
-    return z / np.sum(z, axis=axis, keepdims=True)
+    z = a - np.max(np.real(a), axis=axis, keepdims=True)  # a new array: computed in place
+    np.exp(z, out=z)
+    z /= np.sum(z, axis=axis, keepdims=True)
+    return z
+""",
+    "_gw_softmax_axis_into": """
+def _gw_softmax_axis_into(a, axis):
+    \"\"\"softmax over an axis computed in `a`: an array of the caller nothing else reads.\"\"\"
+    if type(a) is not np.ndarray or a.dtype.kind not in "fc":
+        return _gw_softmax_axis(a, axis)
+    a -= np.max(np.real(a), axis=axis, keepdims=True)
+    np.exp(a, out=a)
+    a /= np.sum(a, axis=axis, keepdims=True)
+    return a
 """,
     "_gw_log_softmax_axis": """
 def _gw_log_softmax_axis(a, axis):
-    shifted = a - np.max(np.real(a), axis=axis, keepdims=True)
-    return shifted - np.log(np.sum(np.exp(shifted), axis=axis, keepdims=True))
+    shifted = a - np.max(np.real(a), axis=axis, keepdims=True)  # a new array
+    shifted -= np.log(np.sum(np.exp(shifted), axis=axis, keepdims=True))
+    return shifted
 """,
     "_gw_tie_weights": """
 def _gw_tie_weights(a, axis, op):

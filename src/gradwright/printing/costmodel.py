@@ -4,6 +4,8 @@ rewrites chosen by it (inv(A) B as solve(A, B), products distributed over sums).
 from __future__ import annotations
 
 from .. import expr as E
+from .cholesky import inverse_trace
+from .gls import orthogonal_residuals
 
 #: longest product chain ordered by dynamic programming (cubic in the length)
 MAX_DP_CHAIN = 16
@@ -160,7 +162,9 @@ def _appears_as_result(e: E.Expr, name: str) -> bool:
 def lower(e: E.Expr, cost: CostModel, free=frozenset()) -> E.Expr:
     """inv(A) @ B -> solve(A, B); distribute products over sums where the cost model says so;
     a solve with a sum distributed where every term becomes a solve computed anyway or one
-    with a single right-hand side."""
+    with a single right-hand side; products that vanish by the normal equations of a
+    weighted least-squares residual dropped (gls.py)."""
+    e = orthogonal_residuals(e)
     if free and len(free) <= 400:  # what is computed anyway is free transposed too
         free = free | {
             E.transpose(x) for x in free if type(x) in (E.Add, E.MatMul, E.Named, E.Func)
@@ -188,8 +192,8 @@ def _lower(e: E.Expr, cost: CostModel, free, solves) -> E.Expr:
             if type(out) is E.MatMul:
                 out = _distribute(out, cost, free, go)
                 if type(out) is E.MatMul:
-                    out = _solves(out)
-            out = _thin_solve(out, solves)
+                    out = _all_solves(out)
+            out = inverse_trace(_thin_solve(out, solves))
         memo[x] = out
         return out
 
@@ -281,3 +285,11 @@ def _solves(m: E.MatMul) -> E.Expr:
             left = E.matmul(*fs[:i])
             return E.transpose(E.Solve(E.transpose(a), E.transpose(left)))
     return m
+
+
+def _all_solves(m: E.MatMul) -> E.Expr:
+    """Every inverse of a chain as a solve (an interior inv(A) would otherwise be formed)."""
+    out = _solves(m)
+    while type(out) is E.MatMul and out is not m and any(type(f) is E.Inverse for f in out.args):
+        m, out = out, _solves(out)
+    return out

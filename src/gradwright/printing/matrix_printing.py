@@ -9,6 +9,7 @@ from __future__ import annotations
 from .. import expr as E
 from .. import matrix_functions as M
 from . import precedence as P
+from . import shared_eigh
 from .latex import LatexPrinter
 from .matrix_runtime import DEPENDS
 from .matrix_runtime import HELPERS as _RUNTIME_HELPERS
@@ -238,3 +239,6 @@ for _cls, _method in {
     M.SolveDiscreteLyapunov: _code_helper("_gw_solve_discrete_lyapunov"),
 }.items():
     setattr(NumpyPrinter, f"_print_{_cls.__name__}", _method)
+
+# one eigh per matrix a function needs the spectrum of twice (wraps the methods just attached)
+shared_eigh.attach(NumpyPrinter)

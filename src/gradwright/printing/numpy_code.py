@@ -31,11 +31,16 @@ from .costmodel import (  # noqa: F401 - public names kept importable from here
     guess_sizes,
     lower,
 )
+from .inplace import INPLACE_HELPERS, rewrite_function
 from .runtime import FUNC_CODE, HELPERS  # noqa: F401
-from .structure import known_spd
+from .shared_eigh import HELPERS as SHARED_EIGH_HELPERS
+from .shared_eigh import shared_matrices
+from .structure import cholesky_ok, known_gram, known_spd
 from .text import TextPrinter
 
 HELPERS.update(AXIS_HELPERS)
+HELPERS.update(INPLACE_HELPERS)
+HELPERS.update(SHARED_EIGH_HELPERS)
 HELPERS.update(spec.helper for spec in EXTRA_ENTRYWISE.values() if spec.helper is not None)
 
 # ---------------------------------------------------------------------------------------------
@@ -65,7 +70,24 @@ class NumpyPrinter(NumpyAxisMixin, TextPrinter):
     def _print_LeastSquares(self, e):
         a, b = e.args
         self.use("_gw_lstsq")
-        return f"_gw_lstsq({self._print(a)}, {self._print(b)}, {self.label(a)})"
+        weighted = type(a).__name__ in ("Whiten", "Colour")  # (the design as the user wrote it)
+        label = self.label(a.args[1] if weighted else a)
+        return f"_gw_lstsq({self._print(a)}, {self._print(b)}, {label})"
+
+    def _print_Whiten(self, e):
+        cho = self._spd_factor(e.args[0])
+        self.use("_gw_cho_whiten")
+        return f"_gw_cho_whiten({cho}, {self._print(e.args[1])})"
+
+    def _print_Colour(self, e):
+        cho = self._spd_factor(e.args[0])
+        self.use("_gw_cho_colour")
+        return f"_gw_cho_colour({cho}, {self._print(e.args[1])})"
+
+    def _print_InverseTrace(self, e):
+        cho = self._spd_factor(e.args[0])
+        self.use("_gw_cho_inv_trace")
+        return f"_gw_cho_inv_trace({cho})"
 
     def _print_CallTimeChoice(self, e):
         own, dist, own_cost, dist_cost = e.args
@@ -151,7 +173,32 @@ class NumpyPrinter(NumpyAxisMixin, TextPrinter):
             if right == "row" and left is None:
                 col = f"{self.wrap(self._print(e.args[0]))}[:, None]"
                 return f"np.broadcast_to({col}, {self.shape_tuple(e.shape)})"
+        # X @ ones((c, k)) repeats the row sums of X k times (a softmax backward has it): a sum
+        # and a read-only broadcast view, never the ones matrix nor its product
+        if len(e.args) >= 2 and E.is_matrix_shape(e.shape):
+            for end, axis in ((-1, 1), (0, 0)):
+                f = e.args[end]
+                if type(f) is E.Ones and E.is_matrix_shape(f.shape):
+                    rest = E.matmul(*(e.args[:-1] if end == -1 else e.args[1:]))
+                    if E.is_matrix_shape(rest.shape):
+                        summed = self._sum_kept(rest, axis)
+                        return f"np.broadcast_to({summed}, {self.shape_tuple(e.shape)})"
         return super()._print_MatMul(e)
+
+    def _sum_kept(self, x: E.Expr, axis: int) -> str:
+        """np.sum(x, axis, keepdims=True); of a product X * Y by einsum, without forming it."""
+        if type(x) is E.Mul and len(x.args) == 2 and self.gen.temps.get(x) is None:
+            a, b = x.args
+            if E.is_matrix_shape(a.shape) and E.is_matrix_shape(b.shape):
+                out, index = ("i", "[:, None]") if axis == 1 else ("j", "[None, :]")
+                return f'np.einsum("ij,ij->{out}", {self._print(a)}, {self._print(b)}){index}'
+        return f"np.sum({self._print(x)}, axis={axis}, keepdims=True)"
+
+    def _print_Add(self, e):
+        factored = _factor_common(e)
+        if factored is not None:  # A*X - A*Y as A*(X - Y): one product fewer
+            return self._print(factored)
+        return super()._print_Add(e)
 
     def _reuse_products(self, seg: list) -> list:
         """A run of factors whose product is already a temporary is read from it."""
@@ -286,7 +333,32 @@ class NumpyPrinter(NumpyAxisMixin, TextPrinter):
                 # parenthesized: the parent sees a trace (an atom), not a product
                 return f"({self.wrap(lt)} @ {self.wrap(rt)})"
             return f'np.einsum("ij,ji->", {lt}, {rt})'
+        thin = self._trace_of_solve(a)
+        if thin is not None:
+            return thin
         return f"np.trace({self._print(a)})"
+
+    def _trace_of_solve(self, a: E.Expr) -> str | None:
+        """tr(solve(A, L R)) = Σ solve(A, L) ∘ Rᵀ: a solve with the fewest right-hand sides
+        instead of one with n of them (n³ work for a trace)."""
+        if type(a) is not E.Solve or self.gen.temps.get(a) is not None:
+            return None
+        m, b = a.args
+        fs = b.args if type(b) is E.MatMul else ()
+        if len(fs) < 2:
+            return None
+        cost = self.gen.cost
+        k = min(range(1, len(fs)), key=lambda k: (cost.dim(fs[k - 1].shape[1]), k))
+        inner, n = fs[k - 1].shape[1], m.shape[0]
+        if inner == n:
+            return None
+        left = E.Solve(m, E.matmul(*fs[:k]))
+        right = E.transpose(E.matmul(*fs[k:]))
+        thin = f'np.einsum("ij,ij->", {self._print(left)}, {self._print(right)})'
+        if inner is None:
+            return thin
+        # the sizes decide (n solves against `inner` of them): chosen at call time
+        return f"({thin} if {self.dim(inner)} < {self.dim(n)} else np.trace({self._print(a)}))"
 
     def _print_Sum(self, e):
         a = e.args[0]
@@ -311,7 +383,7 @@ class NumpyPrinter(NumpyAxisMixin, TextPrinter):
         return f"np.sum({self._print(a)})"
 
     def _spd_factor(self, a: E.Expr) -> str | None:
-        if known_spd(a) and self.gen.use_cholesky:
+        if self.gen.use_cholesky and cholesky_ok(a):
             self.use("_gw_cho")
             self.use("_gw_cho_solve")
             return self.gen.cholesky_for(a, self)
@@ -329,7 +401,8 @@ class NumpyPrinter(NumpyAxisMixin, TextPrinter):
         a = e.args[0]
         cho = self._spd_factor(a)
         if cho is not None:
-            return f"_gw_cho_solve({cho}, np.eye({self.dim(a.shape[0])}, dtype=_dims.dtype))"
+            self.use("_gw_cho_inv")
+            return f"_gw_cho_inv({cho})"
         self.use("_gw_inv")
         return f"_gw_inv({self._print(a)}, {self.label(a)})"
 
@@ -496,6 +569,8 @@ class CodeGen:
         self.module_lines: list[str] = []
         #: complex blocks: directions and cotangents may be complex arrays
         self.complex_directions = False
+        #: elementwise arithmetic written into the arrays the code owns (printing/inplace.py)
+        self.in_place = True
 
     def arg_name(self, name: str) -> str:
         if keyword.iskeyword(name) or name.startswith("_"):  # pragma: no cover - parser refuses
@@ -503,12 +578,22 @@ class CodeGen:
         return name
 
     def cholesky_for(self, a: E.Expr, printer: NumpyPrinter) -> str:
+        if type(a) is E.Transpose:  # an spd matrix is its transpose: one factor for both
+            a = a.args[0]
         name = self.cholesky.get(a)
         if name is None:
             name = f"_chol{len(self.cholesky)}"
             self.cholesky[a] = name
             self.uses_scipy = True
-            declared = "" if E.is_spd(a) else ", False"
+            declared = (
+                ""
+                if E.is_spd(a)
+                else ", False"
+                if known_spd(a)
+                else ", 'gram'"
+                if known_gram(a)
+                else ", False"
+            )
             factor = f"_gw_cho({printer._print(a)}, {printer.label(a)}{declared})"
             self.lines.append(f"    {name} = {factor}")
         return name
@@ -552,6 +637,8 @@ class CodeGen:
 
     def function(self, spec: FunctionSpec) -> str:
         self.temps, self.lines, self.cholesky = {}, [], {}
+        # one eigh per matrix whose spectrum the function needs twice (printing/shared_eigh.py)
+        self.eighs, self.eigh_shared = {}, shared_matrices(o.expr for o in spec.outputs)
         printer = NumpyPrinter(self)
         direction = spec.direction
         if direction is not None:
@@ -615,10 +702,14 @@ class CodeGen:
             self.lines.append(f"    {o.name} = {text}")
             self.helpers.add("_gw_finite")
             self.lines += finite_lines(o.name, o.shape, o.what)
-        body = head + self.lines
-        if spec.loop:
-            body.append(spec.loop)
-        body.append(f"    return {spec.returns}")
+        tail = [spec.loop] if spec.loop else []
+        tail.append(f"    return {spec.returns}")
+        if self.in_place:  # arithmetic written into the arrays this function owns
+            scalars = {n for n, s in self.symbols.items() if E.is_scalar_shape(s.shape)}
+            scalars.update(v for k, v in self.temps.items() if E.is_scalar_shape(k.shape))
+            self.lines, used = rewrite_function(self.lines, "\n".join(tail), scalars)
+            self.helpers.update(used)
+        body = head + self.lines + tail
         self.directions = {}
         return "\n".join([*self.module_lines, "", ""] * bool(self.module_lines) + body)
 
@@ -686,6 +777,28 @@ def _shared_nodes(exprs) -> set:
 MAX_FLIP_CHECKS = 400
 
 
+def _factor_common(e: E.Add) -> E.Expr | None:
+    """c A X - c A Y as c A (X - Y): the factors (and the size of the coefficient) every term
+    of a sum shares, taken out; None when the terms share none."""
+    split = [E.split_coef(t) for t in e.args]
+    if any(rest is None for _c, rest in split):
+        return None
+    factors = [list(rest.args) if type(rest) is E.Mul else [rest] for _c, rest in split]
+    # mul() merges repeated factors into powers, so the factors of a term are distinct
+    common = [f for f in factors[0] if all(f in other for other in factors[1:])]
+    if not common or any(E.is_matrix_shape(f.shape) and f.shape != e.shape for f in common):
+        return None
+    size = abs(split[0][0])
+    k = size if all(abs(c) == size for c, _r in split) else 1
+    rests = []
+    for (c, _r), fs in zip(split, factors):
+        left = list(fs)
+        for f in common:
+            left.remove(f)
+        rests.append(E.mul(E.Const(c / k), *left))
+    return E.mul(E.Const(k), *common, E.add(*rests))
+
+
 def _ones_side(f: E.Expr) -> str | None:
     """'col' for a column of ones, 'row' for a row of ones, else None."""
     if type(f) is E.Ones and E.is_col(f.shape):
@@ -717,6 +830,8 @@ def module(header: str, functions: list[str], helpers: set, uses_scipy: bool) ->
     that factors an spd matrix)."""
     lines = [header, "import cmath", "import warnings", "", "import numpy as np"]
     lines.append("")
+    if any(h.startswith("_gw_cho") for h in helpers):  # the LAPACK look-up they all use
+        helpers = {*helpers, "_gw_lapack"}
     for name in sorted(helpers):
         lines.append(HELPERS[name].rstrip())
         lines.append("")

@@ -79,17 +79,33 @@ def _gw_cho(a, label, declared=True):
     # practice)
     tol = max(1e-8, 1e3 * np.finfo(a.dtype).eps) * max(1.0, np.max(np.abs(a), initial=0.0))
     if np.max(np.abs(a - a.T), initial=0.0) > tol:
+        if declared == "gram":
+            raise ValueError(f"{label} is not symmetric, but it is a Gram matrix Fᵀ M F with M spd")
         if declared:
             raise ValueError(f"{label} is declared spd but is not symmetric")
         raise ValueError(
             f"{label} is not symmetric, but it is built to be spd from the matrices declared "
             "spd: check that they are symmetric"
         )
-    from scipy.linalg import cho_factor  # imported on first use: a fast first import
-
+    singular = np.linalg.LinAlgError(
+        f"{label} is singular to working precision: it is a Gram matrix Fᵀ M F with M spd, and F "
+        "does not have full column rank; the formula or its derivative solves with it (inv, "
+        "solve, logdet)"
+    )
     try:
-        return cho_factor(a, check_finite=False)
-    except np.linalg.LinAlgError:
+        factor = _gw_cho_factor(a)  # (LAPACK through NumPy's OpenBLAS, or SciPy)
+        if declared == "gram" and a.size:
+            # psd by construction, so rounding can let a singular one through with a tiny
+            # pivot: LAPACK's condition estimate from the factor (O(n^2)) decides; below
+            # n * eps no digit of a solve is left (common practice)
+            if not _gw_cho_rcond(factor, a) > a.shape[0] * np.finfo(a.dtype).eps:
+                raise singular
+        return factor
+    except np.linalg.LinAlgError as err:
+        if declared == "gram":  # psd by construction: only a rank-deficient B fails here
+            raise singular from None
+        if err is singular:
+            raise
         why = "it is declared spd" if declared else "it is built to be spd from spd matrices"
         raise np.linalg.LinAlgError(f"{label} is not positive definite ({why})") from None
 """,
@@ -104,12 +120,6 @@ def _gw_lstsq(a, b, label):
             stacklevel=3,
         )
     return x
-""",
-    "_gw_cho_solve": """
-def _gw_cho_solve(factor, b):
-    from scipy.linalg import cho_solve
-
-    return cho_solve(factor, b, check_finite=False)
 """,
     "_gw_adjugate": """
 def _gw_adjugate(a):
@@ -167,3 +177,8 @@ FUNC_CODE = {
     "sigmoid": "_gw_sigmoid",
     "softplus": "np.logaddexp(0.0, {})",
 }
+
+
+from .lapack_runtime import LAPACK_HELPERS  # noqa: E402  (texts of the Cholesky helpers)
+
+HELPERS.update(LAPACK_HELPERS)

@@ -117,3 +117,34 @@ def known_spd(e: E.Expr) -> bool:
             for b in split[0]
         )
     return False
+
+
+def known_gram(e: E.Expr) -> bool:
+    """True for Bᵀ M B with M known spd (or absent: BᵀB), B any matrix: psd always, and pd
+    exactly when B has full column rank; solve(M, B) counts as M⁻¹ B.
+
+    Factored by Cholesky like an spd matrix; a failed factorization then means B lacks full
+    column rank (Bᵀ M B is singular) and is reported so, never guessed around.
+
+    >>> from gradwright import derive
+    >>> d = derive("X: (n, p)\\nV: (n, n) spd\\nB = X.T @ solve(V, X)\\nf = logdet(B)", wrt="X")
+    >>> known_gram(d.expr.args[0])
+    True
+    """
+    while type(e) is E.Named:
+        e = e.body
+    if not _square(e) or type(e) not in (E.MatMul, E.Solve):
+        return False
+    from .gls import factors
+
+    fs = factors(e)
+    split = _palindrome(fs) if len(fs) > 1 else None
+    if split is None:
+        return False
+    middle = split[1]
+    return middle is None or known_spd(middle)
+
+
+def cholesky_ok(e: E.Expr) -> bool:
+    """Factored by Cholesky in generated code: known spd, or a Gram matrix (known_gram)."""
+    return known_spd(e) or (type(e) is E.Transpose and known_gram(e.args[0]) or known_gram(e))

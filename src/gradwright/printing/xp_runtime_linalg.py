@@ -149,6 +149,10 @@ class _GwLinalg:
             eps = float(ns.finfo(a.dtype).eps)
             tol = max(1e-8, 1e3 * eps) * max(1.0, float(ns.max(ns.abs(a))))
             if float(ns.max(ns.abs(a - a.T))) > tol:
+                if declared == "gram":
+                    raise ValueError(
+                        f"{label} is not symmetric, but it is a Gram matrix Fᵀ M F with M spd"
+                    )
                 if declared:
                     raise ValueError(f"{label} is declared spd but is not symmetric")
                 raise ValueError(
@@ -156,12 +160,21 @@ class _GwLinalg:
                     "declared spd: check that they are symmetric"
                 )
         why = "it is declared spd" if declared else "it is built to be spd from spd matrices"
+        if declared == "gram":  # psd by construction: only a rank-deficient F fails
+            why = "a Gram matrix Fᵀ M F with M spd: F does not have full column rank"
         try:
             low = self.cholesky(a)
         except Exception as err:
             raise ValueError(f"{label} is not positive definite ({why})") from err
         if self.concrete(low) and not bool(self.ns.all(self.ns.isfinite(low))):
             raise ValueError(f"{label} is not positive definite ({why})")
+        if declared == "gram" and self.concrete(low) and math.prod(low.shape):
+            # psd by construction: rounding can let a singular one through with a tiny pivot;
+            # cond >= (max pivot / min pivot)^2 (common practice)
+            d = self.ns.abs(self.diagonal(low))
+            lo, hi = float(self.ns.min(d)), float(self.ns.max(d))
+            if lo**2 <= low.shape[0] * float(self.ns.finfo(low.dtype).eps) * hi**2:
+                raise ValueError(f"{label} is singular to working precision ({why})")
         return (low, True, a)
 
     def gw_adjugate(self, a):
@@ -173,3 +186,34 @@ class _GwLinalg:
 
     def gw_cho_solve(self, factor, b):
         return self.cho_solve(factor, b)
+
+    # the in-place arithmetic of the NumPy code (printing/inplace.py), computed as written:
+    # JAX arrays are immutable and other libraries' temporaries are theirs to manage
+    def gw_imul(self, x, y):
+        return x * y
+
+    def gw_iadd(self, x, y):
+        return x + y
+
+    def gw_isub(self, x, y):
+        return x - y
+
+    def gw_idiv(self, x, y):
+        return x / y
+
+    def gw_rsub(self, y, x):
+        return y - x
+
+    def gw_rdiv(self, y, x):
+        return y / x
+
+    def gw_apply(self, f, x):
+        return f(x)
+
+    def gw_cho_inv(self, factor):
+        """A⁻¹ from the factor, through n solves (plain NumPy uses LAPACK's potri)."""
+        return self.cho_solve(factor, self.eye(factor[0].shape[0]))
+
+    def gw_cho_inv_trace(self, factor):
+        """tr(A⁻¹) from the factor, through n solves (plain NumPy uses a triangular inverse)."""
+        return self.trace(self.cho_solve(factor, self.eye(factor[0].shape[0])))

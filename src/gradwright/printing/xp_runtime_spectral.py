@@ -52,6 +52,22 @@ class _GwSpectral:
         _w, u = self.gw_eigh(a, label, "eigvalsh")
         return (u * g) @ u.T
 
+    # from one decomposition (w, u) shared by a function (printing/shared_eigh.py)
+    def gw_eigvalsh_jvp_of(self, wu, e, label):
+        return self.ns.sum(wu[1] * ((0.5 * (e + e.T)) @ wu[1]), axis=0)
+
+    def gw_eigvalsh_vjp_of(self, wu, g, label):
+        return (wu[1] * g) @ wu[1].T
+
+    def gw_eigvalsh_vjp_jvp_of(self, *args):
+        self.unavailable("eigvalsh_vjp_jvp")  # as without the shared decomposition
+
+    def gw_matrix_function_of(self, name, *args):
+        self.unavailable(name)
+
+    def gw_spectral_frechet_of(self, name, *args):
+        self.unavailable(f"the derivative of {name}")
+
     def gw_cholesky(self, a, label):
         self._no_dask("cholesky")
         low = self.cholesky(self.gw_symmetric(a, label, "cholesky"))
@@ -109,6 +125,9 @@ class _GwSpectral:
         ns = self.ns
         z = ns.exp(a - ns.max(a, axis=axis, keepdims=True))
         return z / ns.sum(z, axis=axis, keepdims=True)
+
+    def gw_softmax_axis_into(self, a, axis):
+        return self.gw_softmax_axis(a, axis)
 
     def gw_log_softmax_axis(self, a, axis):
         ns = self.ns
