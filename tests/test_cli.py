@@ -79,3 +79,10 @@ def test_the_derivation_writes_each_left_hand_side_once():
     assert lines[0].startswith("dloss = d(")
     assert all(line.startswith("      = ") for line in lines[1:6]), lines
     assert lines[6].startswith("∂loss/∂U = ") and lines[7].startswith("∂loss/∂V = ")
+
+
+def test_the_shape_table_marks_an_empty_structure():
+    out = run("derive", str(BLOCKS / "store_demand.gw"), "--wrt", "U")
+    table = out.stdout.split("Shapes\n", 1)[1].split("\n\n", 1)[0].splitlines()
+    row = next(line for line in table if line.startswith("U "))
+    assert row.split() == ["U", "(s,", "r)", "-", "variable"], row

@@ -49,7 +49,7 @@ def _table(rows: list[dict]) -> str:
     line = "  ".join(c.ljust(widths[c]) for c in cols)
     out = [line, "  ".join("-" * widths[c] for c in cols)]
     for r in rows:
-        out.append("  ".join(r[c].ljust(widths[c]) for c in cols))
+        out.append("  ".join((r[c] or "-").ljust(widths[c]) for c in cols))  # as the notebook
     return "\n".join(s.rstrip() for s in out)
 
 

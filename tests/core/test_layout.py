@@ -3,6 +3,8 @@
 
 from __future__ import annotations
 
+import re
+
 import pytest
 from core_cases import GRADIENT_CASES, JACOBIAN_CASES
 
@@ -102,3 +104,17 @@ def test_every_broken_line_closes_its_braces(budget):
             for line in broken_lines(step.expr, budget):
                 stripped = line.replace(r"\{", "").replace(r"\}", "")
                 assert stripped.count("{") == stripped.count("}"), line
+
+
+def test_the_one_piece_latex_leaves_room_for_its_rules():
+    # an exported notebook's derivation (the text/latex form) cut its rule column off at 1,100 px:
+    # 38 em of math beside 44-character rules; now 30 em beside rules of about 28 characters
+    from gradwright.notebook.render import LATEX_BUDGET, LATEX_RULE_WIDTH
+
+    latex = derivation_latex(derive(KALMAN, wrt=["P"]))
+    for line in latex.split(" \\\\\n"):
+        math, _, rule = line.partition("&& ")
+        math = math.split("&=", 1)[-1].split("&\\qquad", 1)[-1]
+        assert latex_width(math) <= LATEX_BUDGET + 2, line
+        for piece in re.findall(r"\\text\{([^}]*)\}", rule):
+            assert len(piece) <= LATEX_RULE_WIDTH + 2, piece

@@ -196,6 +196,12 @@ def test_dims_out_of_range_are_refused_visibly_not_clamped():
     from gradwright.notebook.check_panel import _table_html
 
     assert "<table" not in _table_html(result) and "inputs:" not in _table_html(result)
+    # the "along" column is words: read from the left, its header with it
+    panel.size_inputs["n"].value = 3
+    table = _table_html(_press(panel))
+    assert "<th style='text-align:left'>along</th>" in table
+    assert "<td style='text-align:left'>direction 1</td>" in table
+    assert "entries one by one</td>" in table.split("<td style='text-align:left'>")[-1]
     panel.size_inputs["n"].value = 4
     assert panel.dims_message.value == ""
     assert _press(panel).passed

@@ -170,6 +170,11 @@ def _status_html(result: CheckResult | None, run: int) -> str:
     )
 
 
+#: a column of words (variable, along) reads from the left (JupyterLab right-aligns table
+#: cells, as for numbers)
+_WORDS = "style='text-align:left'"
+
+
 def _table_html(result: CheckResult) -> str:
     rows = []
     for check in result.checks:
@@ -177,7 +182,8 @@ def _table_html(result: CheckResult) -> str:
             ok = rel <= result.tolerance
             mark = "&#10003;" if ok else "&#10007;"
             rows.append(
-                f"<tr><td>{html.escape(check.variable)}</td><td>{html.escape(label)}</td>"
+                f"<tr><td {_WORDS}>{html.escape(check.variable)}</td>"
+                f"<td {_WORDS}>{html.escape(label)}</td>"
                 f"<td>{analytic: .6e}</td><td>{numeric: .6e}</td><td>{rel:.1e} {mark}</td></tr>"
             )
         if check.entrywise is not None:
@@ -185,7 +191,8 @@ def _table_html(result: CheckResult) -> str:
             count = int(np.isfinite(check.entrywise).sum())
             mark = "&#10003;" if worst <= result.tolerance else "&#10007;"
             rows.append(
-                f"<tr><td>{html.escape(check.variable)}</td><td>{count} entries one by one</td>"
+                f"<tr><td {_WORDS}>{html.escape(check.variable)}</td>"
+                f"<td {_WORDS}>{count} entries one by one</td>"
                 f"<td></td><td></td><td>{worst:.1e} {mark}</td></tr>"
             )
     sources = ", ".join(
@@ -196,7 +203,8 @@ def _table_html(result: CheckResult) -> str:
     if not rows and result.error is not None:  # nothing was compared: no empty table
         return notes
     return (
-        "<table style='font-size:90%'><thead><tr><th>variable</th><th>along</th>"
+        f"<table style='font-size:90%'><thead><tr><th {_WORDS}>variable</th>"
+        f"<th {_WORDS}>along</th>"
         "<th>generated</th><th>finite difference</th><th>relative error</th></tr></thead>"
         f"<tbody>{''.join(rows)}</tbody></table>"
         f"<p style='color:#555;font-size:85%'>inputs: {sources}</p>{notes}"

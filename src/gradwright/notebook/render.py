@@ -44,6 +44,10 @@ RULE_WIDTH = 44  # characters per line of a rule's words before it wraps
 #: the widest math line of a step in the notebook, in ems (an 1,100 px output keeps the rule
 #: column beside it)
 MATH_BUDGET = 38.0
+#: the same for the one-piece LaTeX (`text/latex`, exported notebooks): its rule column does not
+#: wrap by itself, so the math and the rules are both narrower to fit the same 1,100 px
+LATEX_BUDGET = 30.0
+LATEX_RULE_WIDTH = 28
 
 
 def _wrap(words: str, width: int = RULE_WIDTH) -> list[str]:
@@ -53,9 +57,9 @@ def _wrap(words: str, width: int = RULE_WIDTH) -> list[str]:
     return rule_lines(words, width)
 
 
-def rule_latex(words: str) -> str:
+def rule_latex(words: str, width: int = RULE_WIDTH) -> str:
     """A rule's plain words as small grey text, wrapped onto stacked lines when long."""
-    lines = _wrap(words)
+    lines = _wrap(words, width)
     body = (
         lines[0] if len(lines) == 1 else "\\begin{array}{l}" + " \\\\ ".join(lines) + "\\end{array}"
     )
@@ -105,27 +109,27 @@ def derivation_latex(derivation, show: str = "steps") -> str:
     previous_lhs = None
     for step in _steps(derivation, show):
         lhs = step.lhs_latex or ""
-        first, *rest = _rhs_lines(step, lhs)
+        first, *rest = _rhs_lines(step, lhs, LATEX_BUDGET)
         if previous_kind is not None and step.kind != previous_kind:
             lines.append(r"\\[-0.4em]")  # a little air between the differential and the result
         shown_lhs = "" if lhs == previous_lhs else lhs
-        rule = f"&& {rule_latex(step.rule)}" if step.rule else ""
+        rule = f"&& {rule_latex(step.rule, LATEX_RULE_WIDTH)}" if step.rule else ""
         lines.append(f"{shown_lhs} &= {first} {rule}".rstrip())
         lines.extend(rf"&\qquad {more}" for more in rest)
         previous_kind, previous_lhs = step.kind, lhs
     if not derivation.is_scalar and show != "none":
-        lines.append(f"&& {rule_latex(_jacobian_note(derivation))}")
+        lines.append(f"&& {rule_latex(_jacobian_note(derivation), LATEX_RULE_WIDTH)}")
     body = " \\\\\n".join(line for line in lines if line != r"\\[-0.4em]")
     return "$$\n\\begin{aligned}\n" + body + "\n\\end{aligned}\n$$"
 
 
-def _rhs_lines(step, lhs: str) -> list[str]:
+def _rhs_lines(step, lhs: str, budget: float = MATH_BUDGET) -> list[str]:
     """The step's right-hand side, broken at operators when wider than the output allows."""
     expr = getattr(step, "expr", None)
     if expr is not None:
         from gradwright.printing.layout import broken_lines
 
-        return broken_lines(expr, MATH_BUDGET)
+        return broken_lines(expr, budget)
     return [_strip_lhs(_call(step.latex), lhs)]
 
 
