@@ -15,7 +15,7 @@ from .calculus import adjoint, differential, expand_once, has_pending, kronecker
 from .calculus.symmetric_gradient import symmetric_as_is
 from .derivation_functions import DerivationFunctions
 from .errors import FormulaError, NotSupportedError, ShapeError, frame_named
-from .function_specs import MAX_HESSIAN_GRADIENT, build_specs  # noqa: F401
+from .function_specs import ALONE, MAX_HESSIAN_GRADIENT, build_specs  # noqa: F401
 from .language import Block
 from .matrix_checks import adjust_samples
 from .matrix_functions import NODES as _MATRIX_NODES
@@ -103,7 +103,11 @@ class Derivation(DerivationFunctions):
     @warn_nonfinite.setter
     def warn_nonfinite(self, on: bool) -> None:
         self._warn_nonfinite = bool(on)
-        spaces = [self._functions, *self.__dict__.get("_array_api_namespaces", {}).values()]
+        spaces = [
+            self._functions,
+            *self.__dict__.get("_alone_namespaces", {}).values(),
+            *self.__dict__.get("_array_api_namespaces", {}).values(),
+        ]
         for ns in spaces:
             if ns is not None and "_GW_WARN_NONFINITE" in ns:
                 ns["_GW_WARN_NONFINITE"] = self._warn_nonfinite
@@ -461,9 +465,9 @@ class Derivation(DerivationFunctions):
             self._source = self._numpy_source()
         return self._source
 
-    def _numpy_source(self, sizes: dict | None = None) -> str:
+    def _numpy_source(self, sizes: dict | None = None, only: str | None = None) -> str:
         try:
-            gen, specs = self._specs(sizes)
+            gen, specs = build_specs(self, sizes, only) if only else self._specs(sizes)
             funcs = [gen.function(s) for s in specs]
         except ShapeError as err:  # a safety net: no internal error reaches the user
             raise NotSupportedError(
@@ -482,22 +486,37 @@ class Derivation(DerivationFunctions):
         )
         return C.module(header, funcs, gen.helpers, gen.uses_scipy)
 
+    def _run(self, source: str) -> dict:
+        ns: dict = {"__name__": f"gradwright_generated_{self.target}"}
+        filename = f"<gradwright {self.target} #{next(_GENERATED)}>"
+        # tracebacks and inspect.getsource show the generated lines, not "no source"
+        linecache.cache[filename] = (len(source), None, source.splitlines(True), filename)
+        # our own printer wrote this text from the tree; no user text is executed
+        exec(compile(source, filename, "exec"), ns)  # noqa: S102
+        if "_GW_WARN_NONFINITE" in ns:
+            ns["_GW_WARN_NONFINITE"] = self._warn_nonfinite
+        return ns
+
     def _namespace(self) -> dict:
         if self._functions is None:
-            ns: dict = {"__name__": f"gradwright_generated_{self.target}"}
-            source = self.source()
-            filename = f"<gradwright {self.target} #{next(_GENERATED)}>"
-            # tracebacks and inspect.getsource show the generated lines, not "no source"
-            linecache.cache[filename] = (len(source), None, source.splitlines(True), filename)
-            # our own printer wrote this text from the tree; no user text is executed
-            exec(compile(source, filename, "exec"), ns)  # noqa: S102
-            if "_GW_WARN_NONFINITE" in ns:
-                ns["_GW_WARN_NONFINITE"] = self._warn_nonfinite
-            self._functions = ns
+            self._functions = self._run(self.source())
         return self._functions
 
+    def _alone(self, name: str) -> dict | None:
+        """A module of the one function `name` (the value, a gradient, value-and-gradient),
+        while the whole module is not made yet: a first call after derive() generates one
+        function, not every JVP, VJP and HVP too."""
+        if self._functions is not None or not name.startswith(ALONE):
+            return None
+        cache = self.__dict__.setdefault("_alone_namespaces", {})
+        if name not in cache:
+            cache[name] = self._run(self._numpy_source(only=name))
+        return cache[name]
+
     def _fn(self, name: str):
-        ns = self._namespace()
+        ns = self._alone(name)
+        if ns is None or name not in ns:
+            ns = self._namespace()
         if name not in ns:
             raise NotSupportedError(f"not supported yet: {name.replace('_', ' ')} for this target")
         from .backends import dispatching  # NumPy arguments go straight to ns[name]

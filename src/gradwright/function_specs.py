@@ -18,8 +18,13 @@ from .printing import numpy_code as C
 MAX_HESSIAN_GRADIENT = 2_000
 
 
-def build_specs(d, sizes: dict | None = None) -> tuple:
-    """(code generator, [FunctionSpec]) for a derivation `d`, in the order of the module.
+#: functions a module may be generated for alone (they call no other generated function)
+ALONE = ("value", "value_and_gradient", "gradient_")
+
+
+def build_specs(d, sizes: dict | None = None, only: str | None = None) -> tuple:
+    """(code generator, [FunctionSpec]) for a derivation `d`, in the order of the module;
+    with `only` (a name of ALONE's kinds) the spec of that one function.
 
     >>> from gradwright import derive
     >>> gen, specs = build_specs(derive("x: (n,)\\nf = sum(x**2)", wrt="x"))
@@ -30,26 +35,34 @@ def build_specs(d, sizes: dict | None = None) -> tuple:
     cost = d._cost(sizes)
     gen = C.CodeGen(d.block.declarations, d.arguments(), cost, use_cholesky=True)
     gen.complex_directions = getattr(d, "is_complex", False)
-    value = C.lower(d._code_value(), cost)
-    specs = [
-        C.FunctionSpec(
-            "value",
-            f"The value of {d.target}.",
-            [C.Output("_value", value, tgt_shape, "the value")],
-            _ret("_value", tgt_shape),
+    wanted = (lambda name: True) if only is None else (lambda name: name == only)
+    specs = []
+    value = None
+    if only in (None, "value", "value_and_gradient"):
+        value = C.lower(d._code_value(), cost)
+    if wanted("value"):
+        specs.append(
+            C.FunctionSpec(
+                "value",
+                f"The value of {d.target}.",
+                [C.Output("_value", value, tgt_shape, "the value")],
+                _ret("_value", tgt_shape),
+            )
         )
-    ]
     if d._code_has_gradients:
-        specs += _gradient_specs(d, value, cost)
-    for v in d.variables:
-        specs += _variable_specs(d, v, gen, cost)
+        specs += _gradient_specs(d, value, cost, wanted)
+    if only is None:
+        for v in d.variables:
+            specs += _variable_specs(d, v, gen, cost)
     return gen, specs
 
 
-def _gradient_specs(d, value, cost) -> list:
+def _gradient_specs(d, value, cost, wanted) -> list:
     tgt_shape = d.expr.shape
     specs = []
     for v in d.variables:
+        if not wanted(f"gradient_{v}"):
+            continue
         gl = C.lower(d._gradient(v), cost)
         specs.append(
             C.FunctionSpec(
@@ -59,6 +72,8 @@ def _gradient_specs(d, value, cost) -> list:
                 f"_grad_{v}",
             )
         )
+    if not wanted("value_and_gradient"):
+        return specs
     # the value's subexpressions are computed anyway: free for the gradients here
     free = frozenset(E.walk(value))
     both = [C.Output("_value", value, tgt_shape, "the value")]

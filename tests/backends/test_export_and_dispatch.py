@@ -168,7 +168,7 @@ def test_an_operation_a_library_lacks_is_named():
 def test_numpy_calls_reach_the_numpy_function():
     d = derive("X: (n, p)\nw: (p,)\nf = sum((X @ w)**2)", "w")
     g = d.gradient_function()
-    assert g is d._namespace()["gradient_w"]  # the NumPy module's own function: no wrapper
+    assert g.__globals__["gradient_w"] is g  # the NumPy module's own function: no wrapper
     assert "_gw_check" in g.__globals__ and "xp" not in g.__globals__
     assert type(g(X=np.ones((2, 2)), w=np.ones(2))) is np.ndarray
 

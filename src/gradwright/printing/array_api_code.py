@@ -116,9 +116,13 @@ class _ToArrayApi(ast.NodeTransformer):
             ):
                 stmt.value.args = stmt.value.args[:1]
                 return self.visit_Assign(stmt)
+        if any(isinstance(n, ast.Name) and n.id == "_hit" for n in ast.walk(node)):
+            return None  # the cache look-up of the NumPy module's fast path
         return self.generic_visit(node)
 
     def visit_If(self, node):
+        if ast.unparse(node.test) == "_dims is None":  # the NumPy module's slow path
+            return self.visit_Try(ast.Try(node.body, [], [], []))
         # `if not cmath.isfinite(v): _gw_finite(v, ...)` reads a number now: for a Dask graph or
         # a JAX trace that is wrong, so the namespace decides (gw_finite skips what is lazy)
         if any(isinstance(n, ast.Name) and n.id == "cmath" for n in ast.walk(node.test)):

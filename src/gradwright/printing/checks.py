@@ -13,6 +13,8 @@ message or conversion there. Example of the generated text:
             raise LookupError
         _dims = _hit[1]
     except (AttributeError, LookupError):
+        _dims = None
+    if _dims is None:
         if _gw_pos or _gw_foreign(X, w):
             _gw_out = _gw_route('value', _gw_pos, (), dict(X=X, w=w))
             if _gw_out is not _GW_NUMPY:
@@ -205,6 +207,8 @@ def check_code(
     key = _key_text([(e[1], e[2]) for e in entries])
     values = [lead] * bool(lead) + list(keywords)
     kw = ", ".join(f"{k}={k}" for k in keywords)
+    # the full check runs after the cache's try statement, not inside its except clause: an
+    # error it raises about an argument is not shown as raised "during handling" of the miss
     body = [
         "    try:",
         f"        _hit = {cache}[0]",
@@ -212,6 +216,8 @@ def check_code(
         "            raise LookupError",
         "        _dims = _hit[1]",
         "    except (AttributeError, LookupError):",
+        "        _dims = None",
+        "    if _dims is None:",
         f"        if _gw_pos or _gw_foreign({', '.join(values)}):",
         f"            _gw_out = _gw_route({fname!r}, _gw_pos, ({lead + ',' if lead else ''}), "
         f"dict({kw}))",

@@ -117,7 +117,16 @@ def _is_fresh(node: ast.AST) -> bool:
 
 
 def _is_scalar(node: ast.AST, scalars: set) -> bool:
-    """True when `node` is certainly a number (no array to write into, no helper needed)."""
+    """True when `node` is certainly a number (no array to write into, no helper needed).
+    Remembered on the node (a line is parsed afresh for each function, whose `scalars` are
+    fixed), so that a deep expression is not walked again at every level: linear work."""
+    hit = node.__dict__.get("_gw_scalar")
+    if hit is None:
+        hit = node._gw_scalar = _is_scalar_walk(node, scalars)
+    return hit
+
+
+def _is_scalar_walk(node: ast.AST, scalars: set) -> bool:
     if isinstance(node, ast.Constant):
         return True
     if isinstance(node, ast.Name):
@@ -156,7 +165,14 @@ DEPENDS = {"_gw_softmax_axis_into": "_gw_softmax_axis"}
 
 def _ndim(node: ast.AST, scalars: set, vectors: dict) -> int | None:
     """0, 1 or 2 when the syntax and the known names tell the value's number of axes (at
-    most), None when they do not."""
+    most), None when they do not (remembered on the node, like _is_scalar)."""
+    hit = node.__dict__.get("_gw_ndim")
+    if hit is None:
+        hit = node._gw_ndim = (_ndim_walk(node, scalars, vectors),)
+    return hit[0]
+
+
+def _ndim_walk(node: ast.AST, scalars: set, vectors: dict) -> int | None:
     if _is_scalar(node, scalars):
         return 0
     if isinstance(node, ast.Name):
