@@ -104,7 +104,7 @@ def test_reml_code_factors_each_spd_matrix_once_and_forms_no_inverse(block, monk
     assert "np.outer(" not in body
     calls = []
     fn = d.value_and_gradient_function()
-    ns = d._namespace()  # the generated module's globals: every factorization goes through here
+    ns = fn.__globals__  # the generated module's globals: every factorization goes through here
     real = ns["_gw_cho_factor"]
 
     def counting(a):
