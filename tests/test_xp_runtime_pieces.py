@@ -84,3 +84,15 @@ def test_a_singular_matrix_is_named_in_the_formulas_words():
         xp.gw_inv(np.ones((2, 2)), "A")
     with pytest.raises(np.linalg.LinAlgError, match="^A is singular: .* solves with it"):
         xp.gw_solve(np.ones((2, 2)), np.ones(2), "A.T")
+
+
+def test_product_dims_have_one_source_in_both_checks():
+    """The NumPy module's check and the array-API runtime's bind `m*n` dims with the same
+    function text (printing/xp_runtime_dims.py), not two copies of the loop."""
+    from gradwright import derive
+
+    d = derive("X: (n, m*k)\nW: (m, k)\nf = sum(X**2) + sum(W**2)", wrt="W")
+    for backend in ("numpy", "torch"):
+        source = d.source(backend=backend)
+        assert source.count("def _gw_bind_products(") == 1, backend
+        assert source.count("_gw_bind_products(products, dims, owner)") == 1, backend

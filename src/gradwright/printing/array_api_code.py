@@ -26,6 +26,7 @@ RUNTIME_PIECES = (
     "xp_runtime_linalg.py",
     "xp_runtime_spectral.py",
     "xp_runtime_namespace.py",
+    "xp_runtime_dims.py",
     "xp_runtime_check.py",
 )
 

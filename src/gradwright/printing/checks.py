@@ -28,6 +28,18 @@ the slow path and is named (or routed) there, at no cost to the fast path.
 
 from __future__ import annotations
 
+
+def _bind_products_text() -> str:
+    """The text of `_gw_bind_products` (printing/xp_runtime_dims.py), which the array-API runtime
+    joins too: one source for both checks."""
+    import ast
+    from pathlib import Path
+
+    text = Path(__file__).with_name("xp_runtime_dims.py").read_text(encoding="utf-8")
+    (fn,) = [s for s in ast.parse(text).body if isinstance(s, ast.FunctionDef)]
+    return "\n\n" + ast.get_source_segment(text, fn) + "\n"
+
+
 CHECK_HELPER = '''
 class _GwDims(dict):
     """Dim sizes bound by the arguments; a size no argument fixes is a clear error."""
@@ -155,30 +167,12 @@ def _gw_check(specs, last=None):
             plain = plain and type(value) in (float, int)
             a = a.item()
         out.append(a)
-    for _ in range(len(products)):  # after every plain dim is bound; a lone unknown is inferred
-        pending = []
-        for name, word, d, n in products:
-            want, unknown = 1, []
-            for part in d.split("*"):
-                if part.isdigit() or part in dims:
-                    want *= int(part) if part.isdigit() else dims[part]
-                else:
-                    unknown.append(part)
-            if not unknown:
-                if n != want:
-                    raise ValueError(f"{name} has {n} {word} but {d} = {want}")
-            elif len(unknown) == 1 and n % want == 0:
-                dims[unknown[0]], owner[unknown[0]] = n // want, (name, word)
-            else:
-                pending.append((name, word, d, n))
-        if len(pending) == len(products):
-            break  # what stays unknown is reported where a size is needed
-        products = pending
+    _gw_bind_products(products, dims, owner)
     dims.dtype = np.result_type(*kinds, np.float32) if kinds else np.result_type(*out, 0.0)
     if plain:
         last[0] = (tuple(key), dims)
     return out, dims
-'''
+''' + _bind_products_text()
 
 
 def _key_text(names_and_specs) -> str:

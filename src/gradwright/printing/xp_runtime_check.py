@@ -14,6 +14,7 @@ from .xp_runtime import (
     _gw_numpy_of,
     _GwDims,
 )
+from .xp_runtime_dims import _gw_bind_products
 from .xp_runtime_namespace import _GwXp
 
 
@@ -107,23 +108,5 @@ def _gw_check(specs):
             else:
                 dims[d], owner[d] = n, (name, word)
         out.append(a)
-    for _ in range(len(products)):  # after every plain dim is bound; a lone unknown is inferred
-        pending = []
-        for name, word, d, n in products:
-            want, unknown = 1, []
-            for part in d.split("*"):
-                if part.isdigit() or part in dims:
-                    want *= int(part) if part.isdigit() else dims[part]
-                else:
-                    unknown.append(part)
-            if not unknown:
-                if n != want:
-                    raise ValueError(f"{name} has {n} {word} but {d} = {want}")
-            elif len(unknown) == 1 and n % want == 0:
-                dims[unknown[0]], owner[unknown[0]] = n // want, (name, word)
-            else:
-                pending.append((name, word, d, n))
-        if len(pending) == len(products):
-            break  # what stays unknown is reported where a size is needed
-        products = pending
+    _gw_bind_products(products, dims, owner)
     return out, dims, xp
