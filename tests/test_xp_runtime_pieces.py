@@ -95,4 +95,5 @@ def test_product_dims_have_one_source_in_both_checks():
     for backend in ("numpy", "torch"):
         source = d.source(backend=backend)
         assert source.count("def _gw_bind_products(") == 1, backend
-        assert source.count("_gw_bind_products(products, dims, owner)") == 1, backend
+        calls = [ln for ln in source.splitlines() if ln.strip().startswith("_gw_bind_products(")]
+        assert len(calls) == 1, backend
