@@ -151,6 +151,19 @@ def matrix_least_squares(n: int, p: int, k: int):
     TARGETS.append((f"{case}: gradient / hand <= 1.1", r, r <= 1.1))
 
 
+def _against_torch(case, vg, hand, ref, a, wrt, want, got):
+    """Value+gradient of gradwright and the hand-written NumPy version, then JAX and torch;
+    the target is a ratio to torch eager."""
+    check(got, want, case)
+    h = record(case, "value+gradient, hand-written NumPy", lambda: hand(**a), None)
+    ours = record(case, "value+gradient, gradwright", lambda: vg(**a), h)
+    t_torch = others(case, ref, a, wrt, h, want=want)
+    if t_torch:
+        TARGETS.append(
+            (f"{case}: value+gradient / torch <= 0.8", ours / t_torch, ours <= 0.8 * t_torch)
+        )
+
+
 NETWORK = (
     "X: (n, d)\nW1: (d, h)\nb1: (h,)\nW2: (h, k)\nb2: (k,)\nY: (n, k)\n"
     "H = tanh(X @ W1 + b1)\nf = sum((H @ W2 + b2 - Y)**2)"
@@ -182,14 +195,7 @@ def network(n, dd, hh, k):
 
     value, grads = vg(**a)
     hv, hg = hand(**a)
-    check((value, *grads), (hv, *hg), case)
-    h = record(case, "value+gradient, hand-written NumPy", lambda: hand(**a), None)
-    ours = record(case, "value+gradient, gradwright", lambda: vg(**a), h)
-    t_torch = others(case, ref, a, ("W1", "b1", "W2", "b2"), h, want=(hv, *hg))
-    if t_torch:
-        TARGETS.append(
-            (f"{case}: value+gradient / torch <= 0.8", ours / t_torch, ours <= 0.8 * t_torch)
-        )
+    _against_torch(case, vg, hand, ref, a, ("W1", "b1", "W2", "b2"), (hv, *hg), (value, *grads))
 
 
 ATTENTION = (
@@ -238,14 +244,7 @@ def attention(n, m, e):
 
     value, grads = vg(**a)
     hv, hg = hand(**a)
-    check((value, *grads), (hv, *hg), case)
-    h = record(case, "value+gradient, hand-written NumPy", lambda: hand(**a), None)
-    ours = record(case, "value+gradient, gradwright", lambda: vg(**a), h)
-    t_torch = others(case, ref, a, ("Q", "K", "V"), h, want=(hv, *hg))
-    if t_torch:
-        TARGETS.append(
-            (f"{case}: value+gradient / torch <= 0.8", ours / t_torch, ours <= 0.8 * t_torch)
-        )
+    _against_torch(case, vg, hand, ref, a, ("Q", "K", "V"), (hv, *hg), (value, *grads))
 
 
 KALMAN = (

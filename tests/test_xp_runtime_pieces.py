@@ -95,5 +95,9 @@ def test_product_dims_have_one_source_in_both_checks():
     for backend in ("numpy", "torch"):
         source = d.source(backend=backend)
         assert source.count("def _gw_bind_products(") == 1, backend
+        assert source.count("def _gw_bind_axis(") == 1, backend
+        assert "its declaration says" not in source.replace(
+            source[source.index("def _gw_bind_axis(") :][:900], ""
+        ), backend  # the literal-size message only in the shared function
         calls = [ln for ln in source.splitlines() if ln.strip().startswith("_gw_bind_products(")]
         assert len(calls) == 1, backend

@@ -30,14 +30,14 @@ from __future__ import annotations
 
 
 def _bind_products_text() -> str:
-    """The text of `_gw_bind_products` (printing/xp_runtime_dims.py), which the array-API runtime
-    joins too: one source for both checks."""
+    """The text of the dim-binding functions (printing/xp_runtime_dims.py), which the
+    array-API runtime joins too: one source for both checks."""
     import ast
     from pathlib import Path
 
     text = Path(__file__).with_name("xp_runtime_dims.py").read_text(encoding="utf-8")
-    (fn,) = [s for s in ast.parse(text).body if isinstance(s, ast.FunctionDef)]
-    return "\n\n" + ast.get_source_segment(text, fn) + "\n"
+    functions = [s for s in ast.parse(text).body if isinstance(s, ast.FunctionDef)]
+    return "".join("\n\n" + ast.get_source_segment(text, fn) + "\n" for fn in functions)
 
 
 CHECK_HELPER = '''
@@ -145,20 +145,7 @@ def _gw_check(specs, last=None):
             raise ValueError(f"{name} should be {want} {shown} but has {axes}, shape {a.shape}")
         for axis, (d, n) in enumerate(zip(spec, a.shape)):
             word = ("rows", "columns")[axis] if len(spec) == 2 else "entries"
-            if isinstance(d, int):
-                if n != d:
-                    raise ValueError(f"{name} has {n} {word} but its declaration says {d}")
-            elif "*" in d:
-                products.append((name, word, d, n))
-            elif d in dims:
-                if dims[d] != n:
-                    other, other_word = owner[d]
-                    raise ValueError(
-                        f"{name} has {n} {word} but {other} has {d} = {dims[d]}"
-                        + (f" {other_word}" if other_word != word else "")
-                    )
-            else:
-                dims[d], owner[d] = n, (name, word)
+            _gw_bind_axis(name, word, d, n, dims, owner, products)
         if spec:
             kinds.append(a.dtype)
             plain = plain and type(value) is np.ndarray and a is value and a.dtype.kind == "f"

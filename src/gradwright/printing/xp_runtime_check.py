@@ -14,7 +14,7 @@ from .xp_runtime import (
     _gw_numpy_of,
     _GwDims,
 )
-from .xp_runtime_dims import _gw_bind_products
+from .xp_runtime_dims import _gw_bind_axis, _gw_bind_products
 from .xp_runtime_namespace import _GwXp
 
 
@@ -93,20 +93,7 @@ def _gw_check(specs):
                     "sizes): call .compute_chunk_sizes() on it, or to_dask_array(lengths=True)"
                 )
             n = int(n)
-            if isinstance(d, int):
-                if n != d:
-                    raise ValueError(f"{name} has {n} {word} but its declaration says {d}")
-            elif "*" in d:
-                products.append((name, word, d, n))
-            elif d in dims:
-                if dims[d] != n:
-                    other, other_word = owner[d]
-                    raise ValueError(
-                        f"{name} has {n} {word} but {other} has {d} = {dims[d]}"
-                        + (f" {other_word}" if other_word != word else "")
-                    )
-            else:
-                dims[d], owner[d] = n, (name, word)
+            _gw_bind_axis(name, word, d, n, dims, owner, products)
         out.append(a)
     _gw_bind_products(products, dims, owner)
     return out, dims, xp

@@ -1,8 +1,28 @@
-"""Dims given as products (`m*n`): bound after the plain dims, in both argument checks.
+"""Dims bound by the arguments' axes, and dims given as products (`m*n`) after them: the
+same code in both argument checks.
 
 One function, copied as text into the NumPy module's `_gw_check` helper (printing/checks.py)
 and joined into the array-API runtime (a piece of `RUNTIME_PIECES`): self-contained, no imports.
 """
+
+
+def _gw_bind_axis(name, word, d, n, dims, owner, products):
+    """Axis `word` of argument `name` has `n` entries where its declaration says `d`: check a
+    literal size, bind or check a named dim, or keep a product for _gw_bind_products."""
+    if isinstance(d, int):
+        if n != d:
+            raise ValueError(f"{name} has {n} {word} but its declaration says {d}")
+    elif "*" in d:
+        products.append((name, word, d, n))
+    elif d in dims:
+        if dims[d] != n:
+            other, other_word = owner[d]
+            raise ValueError(
+                f"{name} has {n} {word} but {other} has {d} = {dims[d]}"
+                + (f" {other_word}" if other_word != word else "")
+            )
+    else:
+        dims[d], owner[d] = n, (name, word)
 
 
 def _gw_bind_products(products, dims, owner):
